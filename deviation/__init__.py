@@ -1,0 +1,8 @@
+"""deviation: evaluate thermal-process deviations in low-acid canned foods.
+
+The numerical core (``deviation.heating``, ``deviation.lethality``, ``deviation.spoilage``)
+is pure numpy/scipy. ``deviation.evaluate`` is the one pipeline that wires it together.
+"""
+
+__version__ = "0.1.0"
+ENGINE_VERSION = __version__
