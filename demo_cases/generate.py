@@ -1,0 +1,168 @@
+"""Write the demo cases of Osterby Hollow Cannery (an invented plant) and their retort logs.
+
+Invented data for the demo only: every process, lot and reading here is made up. Run from the
+project root: ``python demo_cases/generate.py`` (deterministic: the same files every time).
+"""
+
+from __future__ import annotations
+
+import tomllib
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+PROCESSES = HERE / "processes"
+LOGS = HERE / "logs"
+
+
+def process_table(pid: str) -> tuple[str, dict]:
+    text = (PROCESSES / f"{pid}.toml").read_text()
+    body = "\n".join(line for line in text.splitlines() if not line.startswith("#"))
+    return body.strip() + "\n", tomllib.loads(text)["process"]
+
+
+def retort_trace(p: dict, *, step_min=0.5, start_C=28.0, come_up_min=None, hold_min=None,
+                 drops=(), gaps=(), end_min=None, cooling_min=25.0, seed=1,
+                 overshoot_C=0.4) -> tuple[np.ndarray, np.ndarray]:
+    """A plausible still-retort recorder trace [min, °C] with drops (start, end, lowest) laid in."""
+    rng = np.random.default_rng(seed)
+    PT = p["process_temperature_C"]
+    cu = p["come_up_time_min"] if come_up_min is None else come_up_min
+    hold = p["process_time_min"] if hold_min is None else hold_min
+    t = np.arange(0.0, cu + hold + cooling_min + step_min / 2, step_min)
+    T = np.empty_like(t)
+    up = t <= cu
+    # Come-up: fast at first, slower near the top, reaching PT + overshoot at cu.
+    frac = t[up] / cu
+    T[up] = start_C + (PT + overshoot_C - start_C) * (1 - (1 - frac) ** 1.6)
+    hold_mask = (t > cu) & (t <= cu + hold)
+    T[hold_mask] = PT + overshoot_C + rng.uniform(-0.15, 0.15, hold_mask.sum())
+    cool = t > cu + hold
+    Tw = p.get("cooling_water_temperature_C", 20.0)
+    T[cool] = Tw + (PT - Tw) * np.exp(-(t[cool] - cu - hold) / 4.0)
+    for start, end, low in drops:
+        # The retort falls to its lowest over a minute, stays, and recovers over a minute.
+        ramp_down = (t >= start) & (t < start + 1.0)
+        T[ramp_down] = np.minimum(T[ramp_down], PT + overshoot_C - (PT + overshoot_C - low) * (t[ramp_down] - start))
+        T[(t >= start + 1.0) & (t <= end - 1.0)] = low + rng.uniform(0.0, 0.2, ((t >= start + 1.0) & (t <= end - 1.0)).sum())
+        ramp_up = (t > end - 1.0) & (t <= end)
+        T[ramp_up] = low + (PT + overshoot_C - low) * (t[ramp_up] - (end - 1.0))
+    keep = np.ones_like(t, dtype=bool)
+    for g0, g1 in gaps:
+        keep &= ~((t > g0) & (t < g1))
+    if end_min is not None:
+        keep &= t <= end_min
+    return t[keep], np.round(T[keep], 2)
+
+
+def write_log(name: str, t: np.ndarray, T: np.ndarray, column="temperature_C") -> str:
+    LOGS.mkdir(exist_ok=True)
+    path = LOGS / name
+    lines = [f"# Invented demo record (Osterby Hollow Cannery). {name}", f"time_min,{column}"]
+    lines += [f"{a:.2f},{b:.2f}" for a, b in zip(t, T)]
+    path.write_text("\n".join(lines) + "\n")
+    return f"logs/{name}"
+
+
+def write_case(name: str, pid: str, header: str, deviation: str) -> None:
+    body, _ = process_table(pid)
+    text = f"# {header}\n# Invented demo case (Osterby Hollow Cannery); not real data.\n\n{body}\n{deviation.strip()}\n"
+    (HERE / f"{name}.toml").write_text(text)
+
+
+def deviation_block(lot, retort, size, it, *, log=None, extra=""):
+    lines = ["[deviation]", 'plant = "Osterby Hollow Cannery"', f'lot = "{lot}"', f'retort_id = "{retort}"',
+             f"lot_size_containers = {size}", f"initial_temperature_C = {it}"]
+    if log:
+        lines.append(f'retort_log = "{log}"')
+    return "\n".join(lines) + "\n" + extra
+
+
+def main() -> None:
+    _, chili = process_table("OH-CHL-87x115")
+    _, peas = process_table("OH-PEA-74x113")
+    _, tray = process_table("OH-STW-TRAY")
+
+    # 1. Temperature drop in a still steam retort during the hold.
+    t, T = retort_trace(chili, drops=[(40.0, 48.0, 117.2)], seed=11)
+    log = write_log("R3-2026-1104-A.csv", t, T)
+    write_case("chili_temperature_drop", "OH-CHL-87x115",
+               "Retort 3 lost steam pressure for about 8 minutes during the hold.",
+               deviation_block("CHL-261104-A", "R3", 4800, 52.0, log=log,
+                               extra='description = "Steam header pressure fell; retort read 117.2 C at the lowest."\n'))
+
+    # 2. Interrupted cycle: the retort cooled towards 100 C and came back.
+    t, T = retort_trace(peas, drops=[(18.0, 30.0, 99.5)], hold_min=peas["process_time_min"] + 12, seed=12)
+    log = write_log("R1-2026-1105-B.csv", t, T)
+    write_case("peas_steam_loss", "OH-PEA-74x113",
+               "Boiler trip: retort 1 fell to about 100 C and came back; operator extended the hold 12 min.",
+               deviation_block("PEA-261105-B", "R1", 9600, 58.0, log=log))
+
+    # 3. Short hold, entered by the operator from what was seen (no log yet).
+    write_case("peas_short_hold", "OH-PEA-74x113",
+               "Steam turned off 8 minutes early by mistake (operator's entry, no recorder file yet).",
+               deviation_block("PEA-261106-C", "R2", 9600, 60.0, extra="""
+[[deviation.events]]
+kind = "hold-time"
+process_time_min = 18
+note = "cooling water opened at 27 min from steam on instead of 35"
+"""))
+
+    # 4. Low initial temperature: the lot waited in the cold room before closing.
+    t, T = retort_trace(chili, seed=14)
+    log = write_log("R2-2026-1107-D.csv", t, T)
+    write_case("chili_low_initial_temperature", "OH-CHL-87x115",
+               "Cans sat 40 minutes after filling; initial temperature 31 C against a filed minimum of 40 C.",
+               deviation_block("CHL-261107-D", "R2", 4800, 31.0, log=log))
+
+    # 5. Long come-up on a tray retort.
+    t, T = retort_trace(tray, come_up_min=19.0, start_C=30.0, seed=15)
+    log = write_log("R5-2026-1108-E.csv", t, T)
+    write_case("tray_long_come_up", "OH-STW-TRAY",
+               "Water-spray retort 5 took 19 minutes to come up (filed 12).",
+               deviation_block("STW-261108-E", "R5", 2400, 50.0, log=log))
+
+    # 6. A gap in the temperature record (recorder paper jam).
+    t, T = retort_trace(chili, gaps=[(30.0, 39.0)], seed=16)
+    log = write_log("R3-2026-1109-F.csv", t, T)
+    write_case("chili_record_gap", "OH-CHL-87x115",
+               "The recorder stopped for 9 minutes in the hold; the indicating thermometer was read at 30 and 39 min.",
+               deviation_block("CHL-261109-F", "R3", 4800, 48.0, log=log))
+
+    # 7. A critical factor out: fill weight above the filed maximum.
+    t, T = retort_trace(peas, seed=17)
+    log = write_log("R1-2026-1110-G.csv", t, T)
+    write_case("peas_fill_weight", "OH-PEA-74x113",
+               "Filler drifted: check-weigher found 318 g against a filed maximum of 310 g.",
+               deviation_block("PEA-261110-G", "R1", 9600, 61.0, log=log, extra="""
+[[deviation.critical_factor_readings]]
+name = "fill weight"
+value = 318
+note = "heaviest of 10 containers at the check-weigher"
+"""))
+
+    # 8. A cycle run entirely at the filed alternate temperature (controller set-point error).
+    t, T = retort_trace(chili, hold_min=108.0, seed=18, overshoot_C=0.3)
+    T = np.where((t > 12.0) & (t < 10.0 + 108.0), np.minimum(T, 118.6), T)
+    log = write_log("R4-2026-1111-H.csv", t, T)
+    write_case("chili_alternate_process", "OH-CHL-87x115",
+               "Set-point entered as 118.6 C; the operator held 108 min per the filed alternate process.",
+               deviation_block("CHL-261111-H", "R4", 4800, 50.0, log=log))
+
+    # 9. A cycle with no deviation (for comparison).
+    t, T = retort_trace(chili, seed=19)
+    log = write_log("R2-2026-1112-J.csv", t, T)
+    write_case("chili_no_deviation", "OH-CHL-87x115", "A normal cycle, for comparison.",
+               deviation_block("CHL-261112-J", "R2", 4800, 50.0, log=log))
+
+    # 10. A cycle still running: the record so far ends in the hold with a drop.
+    t, T = retort_trace(chili, drops=[(25.0, 31.0, 118.0)], end_min=45.0, seed=20)
+    log = write_log("R3-2026-1113-K-partial.csv", t, T)
+    write_case("chili_cycle_running", "OH-CHL-87x115",
+               "Still in the hold at 45 min, after a 6-minute drop to 118 C: what if the rest runs as filed?",
+               deviation_block("CHL-261113-K", "R3", 4800, 47.0, log=log))
+
+
+if __name__ == "__main__":
+    main()

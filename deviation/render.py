@@ -1,0 +1,110 @@
+"""Rich terminal rendering of an evaluation (no computation here)."""
+
+from __future__ import annotations
+
+from rich.console import Console, Group
+from rich.panel import Panel
+from rich.table import Table
+from rich.text import Text
+
+from deviation.evaluate import CAUTION, Evaluation
+
+# Each disposition has a word, a symbol and a style: colour is never the only signal.
+DISPOSITION_LOOK = {
+    "no-deviation": ("NO DEVIATION", "✓", "green"),
+    "covered-by-alternate": ("COVERED BY ALTERNATE PROCESS", "≈", "cyan"),
+    "evaluate": ("HOLD - PROCESS AUTHORITY EVALUATES", "!", "yellow"),
+    "reprocess": ("HOLD - REPROCESS OR EVALUATE", "!!", "dark_orange"),
+    "reprocess-or-destroy": ("HOLD - REPROCESS OR DESTROY", "✗", "bold red"),
+}
+
+
+def fmt_probability(p: float) -> str:
+    """A probability per container, readable at a glance (1 in N)."""
+    if p <= 0.0:
+        return "< 1e-300"
+    if p >= 0.5:
+        return f"{p:.3f}"
+    return f"{p:.2e} (1 in {1.0 / p:,.0f})"
+
+
+def guidance_panel(ev: Evaluation) -> Panel:
+    g = ev.guidance or {}
+    disp = g.get("disposition", "evaluate")
+    word, symbol, style = DISPOSITION_LOOK.get(disp, (disp.upper(), "?", "bold"))
+    body = [Text(f"{symbol} {word}  [{disp}]", style=style)]
+    for r in g.get("reasons", []):
+        body.append(Text(f"  • {r['text']}"))
+        body.append(Text(f"      basis: {r['basis']}  (rule {r['rule_id']})", style="dim"))
+    if g.get("actions"):
+        body.append(Text("What to do now:", style="bold"))
+        for i, a in enumerate(g["actions"], 1):
+            body.append(Text(f"  {i}. {a}"))
+    return Panel(Group(*body), title=f"Guidance for lot {ev.lot}, retort {ev.retort_id}", border_style=style)
+
+
+def flags_table(ev: Evaluation) -> Table | Text:
+    if not ev.flags:
+        return Text("No deviation found in the record.", style="green")
+    t = Table(title="What the record shows", show_lines=False, expand=False)
+    t.add_column("code", style="bold")
+    t.add_column("what happened")
+    for f in ev.flags:
+        t.add_row(f"⚑ {f.code}", f.message)
+    return t
+
+
+def figures_table(ev: Evaluation) -> Table:
+    t = Table(title=f"Lethality at the cold spot ({ev.model}{', conservative' if ev.conservative else ''})")
+    t.add_column("quantity")
+    t.add_column("value", justify="right")
+    t.add_column("note")
+    margin = ev.F_margin_min
+    t.add_row("delivered F0", f"{ev.delivered_F_min:.2f} min",
+              ("meets" if margin >= 0 else "BELOW") + f" target by {abs(margin):.2f} min")
+    t.add_row("filed target F0", f"{ev.target_F_min:.2f} min", "")
+    t.add_row("scheduled process F0 (model)", f"{ev.scheduled_F_min:.2f} min",
+              "model reproduces the target" if ev.scheduled_F_min >= ev.target_F_min
+              else "model falls SHORT of the target")
+    if ev.projected_F_min is not None and ev.cycle.running:
+        t.add_row("projected F0 if the rest runs as filed", f"{ev.projected_F_min:.2f} min", "cycle still running")
+    if ev.extension_to_target_min is not None:
+        t.add_row("extra hold to reach target", f"{ev.extension_to_target_min:.1f} min",
+                  "at process temperature, before cooling")
+    elif ev.extension_reason:
+        t.add_row("extra hold to reach target", "n/a", ev.extension_reason)
+    t.add_row("spoilage probability per container", fmt_probability(ev.spoilage_probability),
+              f"filed target: {fmt_probability(ev.target_spoilage_probability)}")
+    t.add_row("expected nonsterile containers in lot", f"{ev.expected_nonsterile_containers:.3g}", "")
+    ok = ev.botulinum_log_reductions >= ev.botulinum_log_reductions_required
+    t.add_row("botulinum log reductions", f"{ev.botulinum_log_reductions:.1f}",
+              f"{'meets' if ok else 'BELOW'} {ev.botulinum_log_reductions_required:g}D")
+    c = ev.cycle
+    if c.hold_start_min is not None:
+        t.add_row("hold", f"{c.hold_duration_min:.1f} min" if c.hold_duration_min is not None else "n/a",
+                  f"from {c.hold_start_min:.1f} to {c.hold_end_min:.1f} min" if c.hold_end_min is not None else "")
+    if c.lowest_during_hold_C is not None:
+        t.add_row("lowest retort during hold", f"{c.lowest_during_hold_C:.1f} °C", "")
+    t.add_row("lethality established", "yes" if ev.lethality_established else "NO",
+              "fully" if ev.lethality_fully_established else "not fully (see flags)")
+    return t
+
+
+def caution_panel() -> Panel:
+    extra = (
+        "Incubation of samples cannot by itself show safety: C. botulinum can grow without swelling. "
+        "If any container of a deviant lot has been distributed, the regulator must be told."
+    )
+    return Panel(Text(f"{CAUTION}\n{extra}", style="bold"), title="Process authority decides",
+                 border_style="magenta")
+
+
+def print_evaluation(ev: Evaluation, console: Console | None = None) -> None:
+    console = console or Console()
+    console.print(Text(f"{ev.product} · process {ev.process_id} · lot {ev.lot} · retort {ev.retort_id}",
+                       style="bold"))
+    if ev.guidance:
+        console.print(guidance_panel(ev))
+    console.print(flags_table(ev))
+    console.print(figures_table(ev))
+    console.print(caution_panel())
