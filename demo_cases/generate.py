@@ -23,11 +23,11 @@ def process_table(pid: str) -> tuple[str, dict]:
 
 
 def retort_trace(p: dict, *, step_min=0.5, start_C=28.0, come_up_min=None, hold_min=None,
-                 drops=(), gaps=(), end_min=None, cooling_min=25.0, seed=1,
-                 overshoot_C=0.4) -> tuple[np.ndarray, np.ndarray]:
+                 drops=(), gaps=(), end_min=None, cooling_min=45.0, seed=1,
+                 overshoot_C=0.4, setpoint_C=None) -> tuple[np.ndarray, np.ndarray]:
     """A plausible still-retort recorder trace [min, °C] with drops (start, end, lowest) laid in."""
     rng = np.random.default_rng(seed)
-    PT = p["process_temperature_C"]
+    PT = p["process_temperature_C"] if setpoint_C is None else setpoint_C
     cu = p["come_up_time_min"] if come_up_min is None else come_up_min
     hold = p["process_time_min"] if hold_min is None else hold_min
     t = np.arange(0.0, cu + hold + cooling_min + step_min / 2, step_min)
@@ -54,6 +54,20 @@ def retort_trace(p: dict, *, step_min=0.5, start_C=28.0, come_up_min=None, hold_
     if end_min is not None:
         keep &= t <= end_min
     return t[keep], np.round(T[keep], 2)
+
+
+def _predicted_cold_spot(p: dict, t, T, *, initial_C: float, seed: int) -> np.ndarray:
+    """A cold-spot trace for the demo: the conduction model's answer plus thermocouple noise."""
+    from deviation.case import Process
+    from deviation.evaluate import cold_spot_model, deliver
+    from deviation.profile import RetortProfile
+
+    process = Process.model_validate(p)
+    model = cold_spot_model(process)
+    d = deliver(RetortProfile(t, T, "demo", None), initial_C, process, model, conservative=False,
+                cooling_start_min=None)
+    rng = np.random.default_rng(seed)
+    return np.round(np.interp(t, d.time_min, d.cold_spot_C) + rng.normal(0.0, 0.05, t.size), 2)
 
 
 def write_log(name: str, t: np.ndarray, T: np.ndarray, column="temperature_C") -> str:
@@ -101,12 +115,12 @@ def main() -> None:
 
     # 3. Short hold, entered by the operator from what was seen (no log yet).
     write_case("peas_short_hold", "OH-PEA-74x113",
-               "Steam turned off 8 minutes early by mistake (operator's entry, no recorder file yet).",
+               "Steam turned off 6 minutes early by mistake (operator's entry, no recorder file yet).",
                deviation_block("PEA-261106-C", "R2", 9600, 60.0, extra="""
 [[deviation.events]]
 kind = "hold-time"
-process_time_min = 18
-note = "cooling water opened at 27 min from steam on instead of 35"
+process_time_min = 14
+note = "cooling water opened at 23 min from steam on instead of 29"
 """))
 
     # 4. Low initial temperature: the lot waited in the cold room before closing.
@@ -143,12 +157,28 @@ note = "heaviest of 10 containers at the check-weigher"
 """))
 
     # 8. A cycle run entirely at the filed alternate temperature (controller set-point error).
-    t, T = retort_trace(chili, hold_min=108.0, seed=18, overshoot_C=0.3)
-    T = np.where((t > 12.0) & (t < 10.0 + 108.0), np.minimum(T, 118.6), T)
+    t, T = retort_trace(chili, hold_min=100.0, seed=18, overshoot_C=0.3, setpoint_C=118.3)
     log = write_log("R4-2026-1111-H.csv", t, T)
     write_case("chili_alternate_process", "OH-CHL-87x115",
-               "Set-point entered as 118.6 C; the operator held 108 min per the filed alternate process.",
+               "Set-point entered as 118.6 C instead of 121.4 C; the operator held 100 min per the filed alternate process.",
                deviation_block("CHL-261111-H", "R4", 4800, 50.0, log=log))
+
+    # 8b. Steam failure early in the hold; the cycle was aborted and the retort cooled.
+    t, T = retort_trace(tray, hold_min=7.0, start_C=30.0, seed=21)
+    log = write_log("R5-2026-1114-L.csv", t, T)
+    write_case("tray_steam_failure", "OH-STW-TRAY",
+               "Boiler failure 7 minutes into the hold; the operator cooled the retort.",
+               deviation_block("STW-261114-L", "R5", 2400, 50.0, log=log))
+
+    # 8c. A measured cold-spot record: a thermocoupled tray rode with the deviant load.
+    t, T = retort_trace(tray, drops=[(25.0, 33.0, 112.0)], start_C=30.0, seed=22, step_min=1.0)
+    log = write_log("R6-2026-1115-M.csv", t, T)
+    cold = _predicted_cold_spot(tray, t, T, initial_C=52.0, seed=23)
+    cold_log = write_log("R6-2026-1115-M-coldspot.csv", t, cold)
+    write_case("tray_measured_cold_spot", "OH-STW-TRAY",
+               "Retort 6 dropped to 112 C for 8 minutes; a thermocouple tray in the load recorded its cold spot.",
+               deviation_block("STW-261115-M", "R6", 2400, 52.0, log=log,
+                               extra=f'cold_spot_log = "{cold_log}"\n'))
 
     # 9. A cycle with no deviation (for comparison).
     t, T = retort_trace(chili, seed=19)

@@ -900,11 +900,11 @@ def analyse_cycle(
     gap_flags = [
         Flag(
             "record-gap",
-            f"no reading from {t[i]:.2f} to {t[i + 1]:.2f} min: a gap of {step[i]:.2f} min, longer "
+            f"no reading from {a:.2f} to {b:.2f} min: a gap of {g:.2f} min, longer "
             f"than the {gap_limit_min:g} min allowed between readings",
-            start_min=float(t[i]), end_min=float(t[i + 1]), value=float(step[i]),
+            start_min=a, end_min=b, value=g,
         )
-        for i in gaps
+        for a, b, g in zip(t[gaps].tolist(), t[gaps + 1].tolist(), step[gaps].tolist())
     ]
 
     above = T >= threshold_C
@@ -955,16 +955,26 @@ def analyse_cycle(
         segment_area = _positive_part_integral(t, deficit)
         cumulative = np.concatenate([[0.0], np.cumsum(segment_area)])
         area = cumulative[last + 1] - cumulative[first - 1]  # segments first-1 .. last
-        lowest_at = [int(a + np.argmin(T[a : b + 1])) for a, b in zip(first, last)]
-        lowest = T[lowest_at]
-        for s, e, low, dm, at in zip(start, end, lowest, area, lowest_at):
-            low_intervals.append(LowInterval(float(s), float(e), float(low), float(dm)))
+        # Lowest reading of each run and where it is, without a loop over runs.
+        in_run = np.zeros(t.size + 1, dtype=np.int64)
+        np.add.at(in_run, first, 1)
+        np.add.at(in_run, last + 1, -1)
+        run_of = np.cumsum(in_run[:-1]) > 0
+        members = np.flatnonzero(run_of)
+        run_id = np.searchsorted(first, members, side="right") - 1
+        lowest = np.minimum.reduceat(T[members], np.searchsorted(members, first))
+        at_lowest = members[T[members] == lowest[run_id]]
+        lowest_at = at_lowest[np.unique(run_id[T[members] == lowest[run_id]], return_index=True)[1]]
+        # Python floats format far faster than numpy scalars in the messages.
+        rows = zip(start.tolist(), end.tolist(), lowest.tolist(), area.tolist(), t[lowest_at].tolist())
+        for s, e, low, dm, at in rows:
+            low_intervals.append(LowInterval(s, e, low, dm))
             flags.append(Flag(
                 "temperature-low",
                 f"retort below the process temperature {pt_text} from {s:.2f} to {e:.2f} min "
-                f"({e - s:.2f} min) during the hold; lowest reading {low:.1f} °C at {t[at]:.2f} min; "
+                f"({e - s:.2f} min) during the hold; lowest reading {low:.1f} °C at {at:.2f} min; "
                 f"{dm:.2f} °C·min below",
-                start_min=float(s), end_min=float(e), value=float(low),
+                start_min=s, end_min=e, value=low,
             ))
 
     ends_before_cooling = i1 == t.size - 1
