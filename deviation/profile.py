@@ -491,6 +491,8 @@ def parse_log_text(text: str, *, source: str, sha256: str | None = None, kind: s
     else:
         time_min = _timestamps_to_minutes(stamps, line_numbers, time_texts, source)
         unit_text = ""
+    # Check the shifted times: they are what the profile keeps.
+    time_min = time_min - time_min[0]
     step = np.diff(time_min)
     bad = np.flatnonzero(step <= 0.0)
     if bad.size:
@@ -510,6 +512,12 @@ def parse_log_text(text: str, *, source: str, sha256: str | None = None, kind: s
 
     # Temperature: the right unit, then a plausible value.
     values = np.array(temperatures)
+    with np.errstate(over="ignore", invalid="ignore"):  # absurd values overflow to inf: reported below
+        return _checked_profile(values, temperature_name, unit, line_numbers, time_min, what, source, sha256)
+
+
+def _checked_profile(values, temperature_name, unit, line_numbers, time_min, what, source, sha256):
+    """Check the temperature column (unit, then plausibility) and build the profile."""
     if temperature_name == "temperature_C":
         temperature_C = values
         highest = int(np.argmax(values))
@@ -546,7 +554,7 @@ def parse_log_text(text: str, *, source: str, sha256: str | None = None, kind: s
         )
 
     return RetortProfile(
-        time_min=time_min - time_min[0],
+        time_min=time_min,
         temperature_C=temperature_C,
         source=source,
         sha256=sha256,

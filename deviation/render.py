@@ -33,9 +33,12 @@ def guidance_panel(ev: Evaluation) -> Panel:
     disp = g.get("disposition", "evaluate")
     word, symbol, style = DISPOSITION_LOOK.get(disp, (disp.upper(), "?", "bold"))
     body = [Text(f"{symbol} {word}  [{disp}]", style=style)]
-    for r in g.get("reasons", []):
+    reasons = g.get("reasons", [])
+    for i, r in enumerate(reasons):
         body.append(Text(f"  • {r['text']}"))
-        body.append(Text(f"      basis: {r['basis']}  (rule {r['rule_id']})", style="dim"))
+        last_of_rule = i + 1 == len(reasons) or reasons[i + 1]["rule_id"] != r["rule_id"]
+        if last_of_rule:  # the basis once per rule, after its reasons
+            body.append(Text(f"    basis ({r['rule_id']}): {r['basis']}", style="dim"))
     if g.get("actions"):
         body.append(Text("What to do now:", style="bold"))
         for i, a in enumerate(g["actions"], 1):
@@ -68,7 +71,9 @@ def figures_table(ev: Evaluation) -> Table:
               else "model falls SHORT of the target")
     if ev.projected_F_min is not None and ev.cycle.running:
         t.add_row("projected F0 if the rest runs as filed", f"{ev.projected_F_min:.2f} min", "cycle still running")
-    if ev.extension_to_target_min is not None:
+    if ev.extension_to_target_min == 0.0:
+        t.add_row("extra hold to reach target", "none needed", "delivered F0 meets the target")
+    elif ev.extension_to_target_min is not None:
         t.add_row("extra hold to reach target", f"{ev.extension_to_target_min:.1f} min",
                   "at process temperature, before cooling")
     elif ev.extension_reason:

@@ -310,6 +310,9 @@ def _check_flag_code(code: str) -> str:
 _CONFIG = ConfigDict(extra="forbid", strict=True, frozen=True)
 
 Outcome = Union[bool, None]
+"""Three-valued outcome of a condition: True, False or None (unknown)."""
+Facts = Mapping[str, Any]
+Traced = tuple[Outcome, list[str]]
 
 
 class MetricCondition(BaseModel):
@@ -434,7 +437,7 @@ class MetricCondition(BaseModel):
             )
         return self
 
-    def evaluate(self, facts: Mapping[str, Any], flags: frozenset[str]) -> tuple[Outcome, list[str]]:
+    def evaluate(self, facts: Facts, flags: frozenset[str]) -> Traced:
         left = facts.get(self.metric)
         if self.metric_ref is None:
             right = self.value
@@ -458,7 +461,8 @@ class MetricCondition(BaseModel):
             outcome: Outcome = None
         else:
             outcome = bool(OPERATORS[self.op](left, right))
-        return outcome, [f"{self.metric} = {_show(left)} {self.op} {right_text} → {_word(outcome)}"]
+        line = f"{self.metric} = {_show(left)} {self.op} {right_text} → {_word(outcome)}"
+        return outcome, [line]
 
     def metrics(self) -> list[str]:
         return [self.metric] + ([self.metric_ref] if self.metric_ref else [])
@@ -476,7 +480,7 @@ class FlagCondition(BaseModel):
     def _known_flag(cls, code: str) -> str:
         return _check_flag_code(code)
 
-    def evaluate(self, facts: Mapping[str, Any], flags: frozenset[str]) -> tuple[Outcome, list[str]]:
+    def evaluate(self, facts: Facts, flags: frozenset[str]) -> Traced:
         outcome = self.flag in flags
         present = "present" if outcome else "absent"
         return outcome, [f"flag {self.flag} {present} → {_word(outcome)}"]
@@ -503,7 +507,7 @@ class AnyFlagCondition(BaseModel):
             _check_flag_code(code)
         return codes
 
-    def evaluate(self, facts: Mapping[str, Any], flags: frozenset[str]) -> tuple[Outcome, list[str]]:
+    def evaluate(self, facts: Facts, flags: frozenset[str]) -> Traced:
         found = [code for code in self.any_flag if code in flags]
         outcome = bool(found)
         seen = ", ".join(found) if found else "none present"
@@ -537,7 +541,7 @@ class AllCondition(BaseModel):
     def _some(cls, conditions: list) -> list:
         return _non_empty(conditions, "all")
 
-    def evaluate(self, facts: Mapping[str, Any], flags: frozenset[str]) -> tuple[Outcome, list[str]]:
+    def evaluate(self, facts: Facts, flags: frozenset[str]) -> Traced:
         results = [part.evaluate(facts, flags) for part in self.all]
         outcomes = [outcome for outcome, _ in results]
         if any(outcome is False for outcome in outcomes):
@@ -567,7 +571,7 @@ class AnyCondition(BaseModel):
     def _some(cls, conditions: list) -> list:
         return _non_empty(conditions, "any")
 
-    def evaluate(self, facts: Mapping[str, Any], flags: frozenset[str]) -> tuple[Outcome, list[str]]:
+    def evaluate(self, facts: Facts, flags: frozenset[str]) -> Traced:
         results = [part.evaluate(facts, flags) for part in self.any]
         outcomes = [outcome for outcome, _ in results]
         if any(outcome is True for outcome in outcomes):
@@ -592,7 +596,7 @@ class NotCondition(BaseModel):
 
     not_: Condition = Field(alias="not")
 
-    def evaluate(self, facts: Mapping[str, Any], flags: frozenset[str]) -> tuple[Outcome, list[str]]:
+    def evaluate(self, facts: Facts, flags: frozenset[str]) -> Traced:
         inner, trace = self.not_.evaluate(facts, flags)
         outcome = None if inner is None else not inner
         return outcome, [f"not → {_word(outcome)}"] + _indent(trace)
@@ -657,7 +661,8 @@ def _check_template(text: str) -> str:
         parts = list(string.Formatter().parse(text))
     except ValueError as error:
         raise _schema_error(
-            "reason_template", "bad placeholder braces ({problem}); write {{{{ and }}}} for literal braces",
+            "reason_template",
+            "bad placeholder braces ({problem}); write {{{{ and }}}} for literal braces",
             {"problem": str(error)},
         ) from None
     for _, name, spec, _conversion in parts:
@@ -1102,7 +1107,7 @@ def _reason_mapping(facts: Mapping[str, Any], flags: Sequence[str]) -> _SafeFact
     return mapping
 
 
-def _run(rule: Rule, facts: Mapping[str, Any], flags: frozenset[str]) -> tuple[Outcome, list[str], list[str]]:
+def _run(rule: Rule, facts: Facts, flags: frozenset[str]) -> tuple[Outcome, list[str], list[str]]:
     outcome, trace = rule.when.evaluate(facts, flags)
     missing = sorted({name for name in rule.when.metrics() if _missing(facts.get(name))})
     return outcome, trace, missing

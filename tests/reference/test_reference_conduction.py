@@ -140,8 +140,9 @@ def test_infinite_cylinder_against_solve_ivp():
     s_ivp = radial_method_of_lines(t)
     s = cylinder_centre_unaccomplished(t, ALPHA_M2_S, RADIUS_M, 1e4)  # height → ∞
     assert np.all((s > 0.01) & (s < 0.99))
-    # 0.5 %: second-order finite differences with 160 nodes plus BDF tolerance
-    np.testing.assert_allclose(s, s_ivp, rtol=5e-3)
+    # 0.1 % (well inside the 0.5 % asked): second-order finite differences at 160 nodes differ
+    # from the series by ~4e-5 relative here, BDF tolerance 1e-9
+    np.testing.assert_allclose(s, s_ivp, rtol=1e-3)
 
 
 def test_slab_against_solve_ivp():
@@ -150,4 +151,4 @@ def test_slab_against_solve_ivp():
     s_ivp = slab_method_of_lines(t, thickness)
     s = brick_centre_unaccomplished(t, ALPHA_M2_S, 1e4, 1e4, thickness)  # two sides → ∞
     assert np.all((s > 0.01) & (s < 0.99))
-    np.testing.assert_allclose(s, s_ivp, rtol=5e-3)
+    np.testing.assert_allclose(s, s_ivp, rtol=1e-3)  # as above (measured ~1.5e-5)
