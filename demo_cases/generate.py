@@ -138,10 +138,10 @@ note = "cooling water opened at 23 min from steam on instead of 29"
                deviation_block("STW-261108-E", "R5", 2400, 50.0, log=log))
 
     # 6. A gap in the temperature record (recorder paper jam).
-    t, T = retort_trace(chili, gaps=[(30.0, 39.0)], seed=16)
+    t, T = retort_trace(chili, gaps=[(30.0, 34.5)], seed=16)
     log = write_log("R3-2026-1109-F.csv", t, T)
     write_case("chili_record_gap", "OH-CHL-87x115",
-               "The recorder stopped for 9 minutes in the hold; the indicating thermometer was read at 30 and 39 min.",
+               "The recorder stopped for 4.5 minutes in the hold; the indicating thermometer was read at 30 and 34.5 min.",
                deviation_block("CHL-261109-F", "R3", 4800, 48.0, log=log))
 
     # 7. A critical factor out: fill weight above the filed maximum.

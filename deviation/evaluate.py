@@ -181,10 +181,14 @@ def deliver(profile: prof.RetortProfile, initial_C: float, process: Process, mod
     """Predict the cold spot for a retort profile and integrate its lethality (General Method)."""
     t0 = float(profile.time_min[0])
     shifted = replace(profile, time_min=profile.time_min - t0)
-    grid, retort = prof.resample_uniform(shifted, _grid_step(shifted.time_min), conservative=conservative)
+    step = _grid_step(shifted.time_min)
+    grid, retort = prof.resample_uniform(shifted, step, conservative=conservative)
     cooling_kw = {}
     if model.cooling is not None and cooling_start_min is not None:
-        cooling_kw = dict(cooling_unaccomplished=model.cooling, cooling_start_min=cooling_start_min - t0)
+        # Snap steam-off down to the grid, so the segment in which the retort starts to fall
+        # responds with the cooling kernel wherever steam-off falls inside it.
+        start = math.floor((cooling_start_min - t0) / step + 1e-9) * step
+        cooling_kw = dict(cooling_unaccomplished=model.cooling, cooling_start_min=start)
     cold = superpose(grid, retort, initial_C, model.heating, **cooling_kw)
     F, cum = general_method(grid, cold, process.reference_temperature_C, process.z_C,
                             conservative=conservative)
@@ -473,10 +477,14 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
 
     # Lethality established / fully established.
     gap_over = analysis.max_gap_min > dev.record_gap_limit_min
+    # A gap over the limit hides what the retort did. Lethality counts as established for safety
+    # only if, even with no heat at all during every such gap, the botulinum reduction is met.
     established = True
-    if gap_over:
-        worst = _gap_worst_case_F(profile, analysis, dev.record_gap_limit_min, loaded, model, conservative)
-        if worst is not None and worst < process.target_F_min:
+    worst_gap_F = None
+    if gap_over and source != "measured":
+        worst_gap_F = _gap_worst_case_F(profile, analysis, dev.record_gap_limit_min, loaded, model, conservative)
+        if worst_gap_F is not None and (log_reductions(worst_gap_F, micro.botulinum_D_min)
+                                        < micro.botulinum_log_reductions_required):
             established = False
     codes = {f.code for f in flags}
     fully = established and not (codes & {"critical-factor-out", "record-gap", "scheduled-F-below-target",
@@ -517,6 +525,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         "critical_factor_out": "critical-factor-out" in codes,
         "cycle_running": running,
         "measured_cold_spot": source == "measured",
+        "gap_worst_case_F_min": worst_gap_F,
     }
     guidance = None
     if rule_set is not False:

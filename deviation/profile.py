@@ -1,10 +1,11 @@
-"""Retort records: read retort and cold-spot logs, build the filed cycle, overlay events, find deviations.
+"""Retort records: read retort and cold-spot logs, build the filed cycle, overlay events, flag
+deviations.
 
 A retort log (or a cold-spot log from a heat penetration test) is a CSV file with one reading a
-row. It is validated on reading: every problem is reported as a :class:`~deviation.errors.RecordError`
-naming the file line, the column, the value found and what was expected. The profile is then
-analysed against the scheduled process: come-up, hold, drops below process temperature during the
-hold, gaps in the record, and initial temperature.
+row. It is validated on reading: every problem is reported as a
+:class:`~deviation.errors.RecordError` naming the file line, the column, the value found and
+what was expected. The profile is then analysed against the scheduled process: come-up, hold,
+drops below process temperature during the hold, gaps in the record, and initial temperature.
 
 Conservative habits follow the FDA *Guide to Inspections of Low Acid Canned Food Manufacturers*
 (Part 1): a single reading does not show the temperature stayed above a value between readings,
@@ -259,7 +260,7 @@ def _data_lines(text: str) -> list[tuple[int, str]]:
 
 
 def _csv_rows(lines: list[tuple[int, str]], source: str, what: str) -> list[tuple[int, list[str]]]:
-    """Split the kept lines into fields with the csv module, keeping each row's first line number."""
+    """Split the kept lines into fields (csv module), keeping each row's first line number."""
     reader = csv.reader([line for _, line in lines])
     rows = []
     consumed = 0
@@ -281,7 +282,9 @@ def _csv_rows(lines: list[tuple[int, str]], source: str, what: str) -> list[tupl
     return rows
 
 
-def _header_columns(header: list[str], line: int, source: str, what: str) -> tuple[str, int, str, int]:
+def _header_columns(
+    header: list[str], line: int, source: str, what: str
+) -> tuple[str, int, str, int]:
     """Find the time and temperature columns: (time name, index, temperature name, index)."""
     names = [name.strip().lower() for name in header]
     canonical = {"time_min": "time_min", "time": "time", "temperature_c": "temperature_C",
@@ -332,7 +335,9 @@ def _header_columns(header: list[str], line: int, source: str, what: str) -> tup
 def _number(text: str, line: int, column: str, expected: str, source: str) -> float:
     value = text.strip()
     if not value:
-        raise RecordError(f"line {line}, column {column}: empty value; expected {expected}", source=source)
+        raise RecordError(
+            f"line {line}, column {column}: empty value; expected {expected}", source=source
+        )
     if _NON_FINITE.fullmatch(value):
         raise RecordError(
             f"line {line}, column {column}: {value!r} is not a finite number; expected {expected}",
@@ -359,12 +364,15 @@ def _timestamp(text: str, line: int, source: str) -> datetime:
     except ValueError:
         raise RecordError(
             f"line {line}, column time: {value!r} is not an ISO-8601 timestamp; expected e.g. "
-            "2024-05-01T10:00:00 or 2024-05-01T10:00:00+02:00 (for minutes use the header time_min)",
+            "2024-05-01T10:00:00 or 2024-05-01T10:00:00+02:00 (for minutes use the header "
+            "time_min)",
             source=source,
         ) from None
 
 
-def _timestamps_to_minutes(stamps: list[datetime], lines: list[int], texts: list[str], source: str) -> np.ndarray:
+def _timestamps_to_minutes(
+    stamps: list[datetime], lines: list[int], texts: list[str], source: str
+) -> np.ndarray:
     aware = [stamp.utcoffset() is not None for stamp in stamps]
     if any(aware) and not all(aware):
         odd = aware.index(not aware[0])
@@ -372,14 +380,17 @@ def _timestamps_to_minutes(stamps: list[datetime], lines: list[int], texts: list
         first = "has one" if aware[0] else "has none"
         raise RecordError(
             f"line {lines[odd]}, column time: timestamp {texts[odd]} {this} but the first one "
-            f"(line {lines[0]}) {first}; expected all timestamps timezone-aware or all naive, not mixed",
+            f"(line {lines[0]}) {first}; expected all timestamps timezone-aware or all naive, "
+            "not mixed",
             source=source,
         )
     start = stamps[0]
     return np.array([(stamp - start).total_seconds() / 60.0 for stamp in stamps])
 
 
-def parse_log_text(text: str, *, source: str, sha256: str | None = None, kind: str = "retort") -> RetortProfile:
+def parse_log_text(
+    text: str, *, source: str, sha256: str | None = None, kind: str = "retort"
+) -> RetortProfile:
     """Read a retort log or cold-spot log from CSV text, validating every row.
 
     Parameters
@@ -441,7 +452,8 @@ def parse_log_text(text: str, *, source: str, sha256: str | None = None, kind: s
     data = rows[1:]
     if not data:
         raise RecordError(
-            f"the {what} has a header (line {header_line}) but no readings; expected at least 2 rows",
+            f"the {what} has a header (line {header_line}) but no readings; expected at least "
+            "2 rows",
             source=source,
         )
     if len(data) < 2:
@@ -504,16 +516,20 @@ def parse_log_text(text: str, *, source: str, sha256: str | None = None, kind: s
                 source=source,
             )
         raise RecordError(
-            f"line {line_numbers[i]}, column {time_name}: time {time_texts[i]}{unit_text} is earlier "
-            f"than {time_texts[i - 1]}{unit_text} at line {line_numbers[i - 1]}; expected times "
+            f"line {line_numbers[i]}, column {time_name}: time {time_texts[i]}{unit_text} is "
+            f"earlier than {time_texts[i - 1]}{unit_text} at line {line_numbers[i - 1]}; expected "
+            "times "
             "increasing strictly",
             source=source,
         )
 
     # Temperature: the right unit, then a plausible value.
     values = np.array(temperatures)
-    with np.errstate(over="ignore", invalid="ignore"):  # absurd values overflow to inf: reported below
-        return _checked_profile(values, temperature_name, unit, line_numbers, time_min, what, source, sha256)
+    # Absurd values overflow to inf in the conversions; they are reported as impossible.
+    with np.errstate(over="ignore", invalid="ignore"):
+        return _checked_profile(
+            values, temperature_name, unit, line_numbers, time_min, what, source, sha256
+        )
 
 
 def _checked_profile(values, temperature_name, unit, line_numbers, time_min, what, source, sha256):
@@ -536,20 +552,27 @@ def _checked_profile(values, temperature_name, unit, line_numbers, time_min, wha
         highest = int(np.argmax(values))
         if values[highest] < LOWEST_FAHRENHEIT_MAXIMUM_F:
             raise RecordError(
-                f"column temperature_F: values look like °C (all below {LOWEST_FAHRENHEIT_MAXIMUM_F:g} "
-                f"°F, highest {values[highest]:g} at line {line_numbers[highest]}; a retort at process "
-                f"temperature reads about 240-265 °F); if the {what} is in Celsius use the header "
+                "column temperature_F: values look like °C (all below "
+                f"{LOWEST_FAHRENHEIT_MAXIMUM_F:g} °F, highest {values[highest]:g} at line "
+                f"{line_numbers[highest]}; a retort at process temperature reads about "
+                "240-265 °F); "
+                f"if the {what} is in Celsius use the header "
                 "temperature_C",
                 source=source,
             )
         temperature_C = fahrenheit_to_celsius(values)
-    impossible = np.flatnonzero((temperature_C < LOWEST_PLAUSIBLE_C) | (temperature_C > HIGHEST_PLAUSIBLE_C))
+    impossible = np.flatnonzero(
+        (temperature_C < LOWEST_PLAUSIBLE_C) | (temperature_C > HIGHEST_PLAUSIBLE_C)
+    )
     if impossible.size:
         i = int(impossible[0])
-        found = f"{values[i]:g} {unit}" + (f" ({temperature_C[i]:.1f} °C)" if unit == "°F" else "")
+        found = f"{values[i]:g} {unit}"
+        if unit == "°F":
+            found += f" ({temperature_C[i]:.1f} °C)"
         raise RecordError(
-            f"line {line_numbers[i]}, column {temperature_name}: temperature {found} is impossible; "
-            f"expected {LOWEST_PLAUSIBLE_C:g} to {HIGHEST_PLAUSIBLE_C:g} °C in a {what}",
+            f"line {line_numbers[i]}, column {temperature_name}: temperature {found} is "
+            f"impossible; expected {LOWEST_PLAUSIBLE_C:g} to {HIGHEST_PLAUSIBLE_C:g} °C in a "
+            f"{what}",
             source=source,
         )
 
@@ -662,19 +685,25 @@ def filed_cycle(
             raise ValueError(f"filed_cycle: {name} must be positive, got {value!r}")
     n_come_up = int(round(come_up_time_min / step_min))
     n_hold_end = n_come_up + max(1, int(round(process_time_min / step_min)))
-    n_total = max(n_hold_end, int(round((come_up_time_min + process_time_min + cooling_time_min) / step_min)))
+    total_min = come_up_time_min + process_time_min + cooling_time_min
+    n_total = max(n_hold_end, int(round(total_min / step_min)))
     index = np.arange(n_total + 1)
     time_min = index * step_min
-    ramp_C = start_temperature_C + (process_temperature_C - start_temperature_C) * index / max(n_come_up, 1)
+    rise_C = process_temperature_C - start_temperature_C
+    ramp_C = start_temperature_C + rise_C * index / max(n_come_up, 1)
     temperature_C = np.where(
         index < n_come_up,
         ramp_C,
         np.where(index <= n_hold_end, process_temperature_C, cooling_water_temperature_C),
     )
-    return RetortProfile(time_min=time_min, temperature_C=temperature_C, source="filed cycle", sha256=None)
+    return RetortProfile(
+        time_min=time_min, temperature_C=temperature_C, source="filed cycle", sha256=None
+    )
 
 
-def _with_breakpoints(profile: RetortProfile, times_min: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _with_breakpoints(
+    profile: RetortProfile, times_min: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """Profile arrays with linearly interpolated points added at ``times_min`` (unless present)."""
     t = profile.time_min
     T = profile.temperature_C
@@ -726,8 +755,8 @@ def apply_temperature_low(
     t = profile.time_min
     if not (math.isfinite(start_min) and math.isfinite(end_min) and math.isfinite(temperature_C)):
         raise RecordError(
-            f"temperature-low event from {start_min} to {end_min} min at {temperature_C} °C: expected "
-            "finite numbers",
+            f"temperature-low event from {start_min} to {end_min} min at {temperature_C} °C: "
+            "expected finite numbers",
             source=profile.source,
         )
     if end_min < start_min:
@@ -747,11 +776,17 @@ def apply_temperature_low(
     time_min, temp_C = _with_breakpoints(profile, np.array([start, end]))
     inside = (time_min >= start - _SAME_TIME_MIN) & (time_min <= end + _SAME_TIME_MIN)
     temp_C = np.where(inside, np.minimum(temp_C, temperature_C), temp_C)
-    source = profile.source if profile.source.endswith(" + events") else f"{profile.source} + events"
-    return RetortProfile(time_min=time_min, temperature_C=temp_C, source=source, sha256=profile.sha256)
+    source = profile.source
+    if not source.endswith(" + events"):
+        source = f"{source} + events"
+    return RetortProfile(
+        time_min=time_min, temperature_C=temp_C, source=source, sha256=profile.sha256
+    )
 
 
-def resample_uniform(profile: RetortProfile, step_min: float, *, conservative: bool = False) -> tuple[np.ndarray, np.ndarray]:
+def resample_uniform(
+    profile: RetortProfile, step_min: float, *, conservative: bool = False
+) -> tuple[np.ndarray, np.ndarray]:
     """Temperature on a uniform time grid.
 
     Parameters
@@ -871,14 +906,22 @@ def analyse_cycle(
     - The record "ends before cooling" when its last reading is still at/above process
       temperature; then the hold so far and the minutes remaining are reported instead of a
       short hold.
+    - With a tolerance, "below process temperature" means below ``process_temperature_C -
+      tolerance_C`` and degree-minutes are counted from that threshold.
     - Differences under 1e-6 min are floating-point rounding and are not flagged.
     """
     if not math.isfinite(process_temperature_C):
-        raise ValueError(f"analyse_cycle: process_temperature_C must be finite, got {process_temperature_C!r}")
+        raise ValueError(
+            f"analyse_cycle: process_temperature_C must be finite, got {process_temperature_C!r}"
+        )
     if not (math.isfinite(process_time_min) and process_time_min > 0.0):
-        raise ValueError(f"analyse_cycle: process_time_min must be positive, got {process_time_min!r}")
+        raise ValueError(
+            f"analyse_cycle: process_time_min must be positive, got {process_time_min!r}"
+        )
     if not (math.isfinite(come_up_time_min) and come_up_time_min >= 0.0):
-        raise ValueError(f"analyse_cycle: come_up_time_min must be 0 or more, got {come_up_time_min!r}")
+        raise ValueError(
+            f"analyse_cycle: come_up_time_min must be 0 or more, got {come_up_time_min!r}"
+        )
     if not (gap_limit_min > 0.0):
         raise ValueError(f"analyse_cycle: gap_limit_min must be positive, got {gap_limit_min!r}")
     if not (math.isfinite(tolerance_C) and tolerance_C >= 0.0):
@@ -887,7 +930,9 @@ def analyse_cycle(
     t = profile.time_min
     T = profile.temperature_C
     threshold_C = process_temperature_C - tolerance_C
-    pt_text = f"{process_temperature_C:.1f} °C" + (f" (less {tolerance_C:g} °C tolerance)" if tolerance_C else "")
+    pt_text = f"{process_temperature_C:.1f} °C"
+    if tolerance_C:
+        pt_text += f" (less {tolerance_C:g} °C tolerance)"
     flags: list[Flag] = []
 
     # Initial temperature.
@@ -896,8 +941,9 @@ def analyse_cycle(
         if short_C > 0.0:
             flags.append(Flag(
                 "low-initial-temperature",
-                f"initial temperature {initial_temperature_C:.1f} °C is {short_C:.1f} °C below the "
-                f"minimum initial temperature {minimum_initial_temperature_C:.1f} °C of the scheduled process",
+                f"initial temperature {initial_temperature_C:.1f} °C is {short_C:.1f} °C below "
+                f"the minimum initial temperature {minimum_initial_temperature_C:.1f} °C of the "
+                "scheduled process",
                 value=short_C,
             ))
 
@@ -922,7 +968,8 @@ def analyse_cycle(
         flags.append(Flag(
             "process-temperature-not-reached",
             f"the retort never reached the process temperature {pt_text}: highest reading "
-            f"{T[highest]:.1f} °C at {t[highest]:.2f} min; no hold at process temperature is on the record",
+            f"{T[highest]:.1f} °C at {t[highest]:.2f} min; no hold at process temperature is on "
+            "the record",
             start_min=float(t[0]), end_min=float(t[-1]), value=float(T[highest]),
         ))
         flags.extend(gap_flags)
@@ -944,8 +991,9 @@ def analyse_cycle(
         over = come_up - come_up_time_min
         flags.append(Flag(
             "long-come-up",
-            f"come-up took {come_up:.2f} min (first reading at/above {pt_text} at {hold_start:.2f} min), "
-            f"{over:.2f} min longer than the filed come-up time {come_up_time_min:g} min",
+            f"come-up took {come_up:.2f} min (first reading at/above {pt_text} at "
+            f"{hold_start:.2f} min), {over:.2f} min longer than the filed come-up time "
+            f"{come_up_time_min:g} min",
             start_min=float(t[0]), end_min=hold_start, value=over,
         ))
 
@@ -958,23 +1006,25 @@ def analyse_cycle(
         first = np.flatnonzero(edges == 1) + 1 + i0   # first reading below in each run
         last = np.flatnonzero(edges == -1) + i0       # last reading below in each run
         deficit = threshold_C - T
-        start = t[first - 1] + (t[first] - t[first - 1]) * (-deficit[first - 1]) / (deficit[first] - deficit[first - 1])
-        end = t[last] + (t[last + 1] - t[last]) * deficit[last] / (deficit[last] - deficit[last + 1])
+        before, after = first - 1, last + 1
+        start = t[before] + (t[first] - t[before]) * (
+            -deficit[before] / (deficit[first] - deficit[before])
+        )
+        end = t[last] + (t[after] - t[last]) * (deficit[last] / (deficit[last] - deficit[after]))
         segment_area = _positive_part_integral(t, deficit)
         cumulative = np.concatenate([[0.0], np.cumsum(segment_area)])
         area = cumulative[last + 1] - cumulative[first - 1]  # segments first-1 .. last
-        # Lowest reading of each run and where it is, without a loop over runs.
-        in_run = np.zeros(t.size + 1, dtype=np.int64)
-        np.add.at(in_run, first, 1)
-        np.add.at(in_run, last + 1, -1)
-        run_of = np.cumsum(in_run[:-1]) > 0
-        members = np.flatnonzero(run_of)
+        # Lowest reading of each run and its first time, without a loop over runs: the readings
+        # below inside the hold are exactly the runs' members, in order.
+        members = np.flatnonzero(below) + i0
         run_id = np.searchsorted(first, members, side="right") - 1
         lowest = np.minimum.reduceat(T[members], np.searchsorted(members, first))
-        at_lowest = members[T[members] == lowest[run_id]]
-        lowest_at = at_lowest[np.unique(run_id[T[members] == lowest[run_id]], return_index=True)[1]]
+        is_lowest = T[members] == lowest[run_id]
+        lowest_at = members[is_lowest][np.unique(run_id[is_lowest], return_index=True)[1]]
         # Python floats format far faster than numpy scalars in the messages.
-        rows = zip(start.tolist(), end.tolist(), lowest.tolist(), area.tolist(), t[lowest_at].tolist())
+        rows = zip(
+            start.tolist(), end.tolist(), lowest.tolist(), area.tolist(), t[lowest_at].tolist()
+        )
         for s, e, low, dm, at in rows:
             low_intervals.append(LowInterval(s, e, low, dm))
             flags.append(Flag(
@@ -994,17 +1044,18 @@ def analyse_cycle(
             rest = f"the filed process time {process_time_min:g} min is already covered"
         flags.append(Flag(
             "record-ends-before-cooling",
-            f"the record ends at {t[-1]:.2f} min with the retort still at {T[-1]:.1f} °C (at/above "
-            f"{pt_text}) and no cooling on the record: the cycle may still be running; hold so far "
-            f"{hold_duration:.2f} min from {hold_start:.2f} min, {rest}",
+            f"the record ends at {t[-1]:.2f} min with the retort still at {T[-1]:.1f} °C "
+            f"(at/above {pt_text}) and no cooling on the record: the cycle may still be running; "
+            f"hold so far {hold_duration:.2f} min from {hold_start:.2f} min, {rest}",
             start_min=hold_start, end_min=hold_end, value=remaining,
         ))
     elif hold_duration < process_time_min - _EPS_MIN:
         short = process_time_min - hold_duration
         flags.append(Flag(
             "short-hold",
-            f"hold at/above {pt_text} from {hold_start:.2f} to {hold_end:.2f} min is {hold_duration:.2f} "
-            f"min, {short:.2f} min short of the filed process time {process_time_min:g} min",
+            f"hold at/above {pt_text} from {hold_start:.2f} to {hold_end:.2f} min is "
+            f"{hold_duration:.2f} min, {short:.2f} min short of the filed process time "
+            f"{process_time_min:g} min",
             start_min=hold_start, end_min=hold_end, value=short,
         ))
 
@@ -1022,7 +1073,9 @@ def analyse_cycle(
     )
 
 
-def longest_run_at_or_above(profile: RetortProfile, temperature_C: float) -> tuple[float, float] | None:
+def longest_run_at_or_above(
+    profile: RetortProfile, temperature_C: float
+) -> tuple[float, float] | None:
     """Longest stretch of consecutive readings at/above a temperature (for alternate processes).
 
     Parameters

@@ -821,9 +821,6 @@ def _read_toml(path: Path) -> dict[str, Any]:
         raise RulesError(f"{path}: TOML syntax error: {text}") from None
 
 
-_RULE_KEYS = tuple(Rule.model_fields)
-
-
 def _allowed_keys(model: type[BaseModel]) -> list[str]:
     return [field.alias or name for name, field in model.model_fields.items()]
 

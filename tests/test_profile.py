@@ -1,4 +1,4 @@
-"""Tests for deviation.profile: reading logs, the filed cycle, events, resampling, cycle analysis."""
+"""Tests for deviation.profile: reading logs, filed cycle, events, resampling, cycle analysis."""
 
 from __future__ import annotations
 
@@ -144,7 +144,8 @@ def test_non_utf8_file_is_a_record_error(tmp_path):
     with pytest.raises(RecordError) as caught:
         read_log(path)
     assert caught.value.message == (
-        "the retort log is not UTF-8 text (byte 0xb0 at offset 33); expected a CSV file saved as UTF-8"
+        "the retort log is not UTF-8 text (byte 0xb0 at offset 33); expected a CSV file saved "
+        "as UTF-8"
     )
 
 
@@ -179,7 +180,10 @@ def test_read_log_keeps_source_digest_and_values(tmp_path):
 
 
 def test_header_is_case_insensitive_and_extra_columns_are_ignored():
-    text = "\ufeff Operator , Time_Min ,TEMPERATURE_C , pressure_kPa\r\nAB,0,20,101\r\nAB,1,30,150\r\n"
+    text = (
+        "\ufeff Operator , Time_Min ,TEMPERATURE_C , pressure_kPa\r\n"
+        "AB,0,20,101\r\nAB,1,30,150\r\n"
+    )
     profile = parse_log_text(text, source="x.csv")
     np.testing.assert_array_equal(profile.time_min, [0.0, 1.0])
     np.testing.assert_array_equal(profile.temperature_C, [20.0, 30.0])
@@ -220,7 +224,8 @@ def test_iso_timestamps_become_minutes_from_the_first_row():
         "2024-05-01T10:05:15.500,121.1\n"
     )
     profile = parse_log_text(text, source="x.csv")
-    np.testing.assert_allclose(profile.time_min, [0.0, 0.5, 2.0, 5.0 + 15.5 / 60.0], rtol=0, atol=1e-12)
+    np.testing.assert_allclose(profile.time_min, [0.0, 0.5, 2.0, 5.0 + 15.5 / 60.0],
+                               rtol=0, atol=1e-12)
 
 
 def test_timezone_aware_timestamps_across_a_clock_change():
@@ -309,8 +314,8 @@ def test_filed_cycle_rejects_nonsense():
 # --------------------------------------------------------------------------------------------
 
 def test_apply_temperature_low_inserts_exact_breakpoints():
-    base = RetortProfile([0.0, 10.0, 20.0, 30.0, 40.0], [20.0, PT_C, PT_C, PT_C, 30.0], source="log.csv",
-                         sha256="ab" * 32)
+    base = RetortProfile([0.0, 10.0, 20.0, 30.0, 40.0], [20.0, PT_C, PT_C, PT_C, 30.0],
+                         source="log.csv", sha256="ab" * 32)
     low = apply_temperature_low(base, 12.5, 17.25, 118.0)
     np.testing.assert_array_equal(low.time_min, [0.0, 10.0, 12.5, 17.25, 20.0, 30.0, 40.0])
     np.testing.assert_array_equal(low.temperature_C, [20.0, PT_C, 118.0, 118.0, PT_C, PT_C, 30.0])
@@ -319,7 +324,8 @@ def test_apply_temperature_low_inserts_exact_breakpoints():
     again = apply_temperature_low(low, 12.5, 20.0, 119.0)
     assert again.source == "log.csv + events"
     np.testing.assert_array_equal(again.time_min, low.time_min)
-    np.testing.assert_array_equal(again.temperature_C, [20.0, PT_C, 118.0, 118.0, 119.0, PT_C, 30.0])
+    np.testing.assert_array_equal(again.temperature_C,
+                                  [20.0, PT_C, 118.0, 118.0, 119.0, PT_C, 30.0])
 
 
 def test_apply_temperature_low_keeps_lower_readings_and_interpolates_breakpoints():
@@ -372,7 +378,8 @@ def test_resample_conservative_holds_the_lower_of_two_readings_on_a_fine_grid():
 
 
 def test_resample_conservative_keeps_a_dip_between_grid_points():
-    profile = RetortProfile([0.0, 1.4, 1.5, 1.6, 3.0], [121.0, 121.0, 115.0, 121.0, 121.0], source="hand")
+    profile = RetortProfile([0.0, 1.4, 1.5, 1.6, 3.0], [121.0, 121.0, 115.0, 121.0, 121.0],
+                            source="hand")
     _, linear = resample_uniform(profile, 1.0)
     _, low = resample_uniform(profile, 1.0, conservative=True)
     np.testing.assert_array_equal(linear, [121.0, 121.0, 121.0, 121.0])  # the dip is lost
@@ -453,8 +460,8 @@ def test_short_hold():
     flag = analysis.flags[0]
     assert flag.value == pytest.approx(14.5)
     assert flag.message == (
-        "hold at/above 121.1 °C from 10.00 to 55.50 min is 45.50 min, 14.50 min short of the filed "
-        "process time 60 min"
+        "hold at/above 121.1 °C from 10.00 to 55.50 min is 45.50 min, 14.50 min short of the "
+        "filed process time 60 min"
     )
 
 

@@ -76,7 +76,12 @@ def _axis_operator(n, h, radial):
     return op, coupling
 
 
-def reference_chain(time_min, retort_C, n_r=60, n_z=80, rtol=1e-7):
+# (n_r, n_z, rtol): the coarsest grid tried whose F is within 0.5 % of the series (20 x 25 nodes
+# was not: -0.56 %), and a finer one
+REFERENCE_GRIDS = [(30, 40, 1e-6), (60, 80, 1e-7)]
+
+
+def reference_chain(time_min, retort_C, n_r=30, n_z=40, rtol=1e-6):
     """Same problem by the method of lines: r–z grid (quarter section), BDF, sparse Jacobian."""
     dr, dz = RADIUS_M / n_r, (HEIGHT_M / 2.0) / n_z
     a_r, c_r = _axis_operator(n_r, dr, radial=True)
@@ -90,7 +95,7 @@ def reference_chain(time_min, retort_C, n_r=60, n_z=80, rtol=1e-7):
 
     sol = solve_ivp(
         rhs, (time_min[0], time_min[-1]), np.full(n_r * n_z, INITIAL_C), method="BDF",
-        jac=jac, t_eval=time_min, rtol=rtol, atol=1e-6, max_step=0.5,
+        jac=jac, t_eval=time_min, rtol=rtol, atol=1e-6,
     )
     cold_C = sol.y[0]  # node (r = 0, z = 0): the geometric centre
     F_min, _ = general_method(time_min, cold_C, TREF_C, Z_C)
@@ -111,40 +116,49 @@ def run(runs=RUNS, reference_runs=3):
     core_chain(time_min, retort_C)  # warm caches (Bessel zeros) before timing
     F_core, cold_core = core_chain(time_min, retort_C)
     core_ms = _median_ms(core_chain, runs, time_min, retort_C)
-    F_ref, cold_ref = reference_chain(time_min, retort_C)
-    ref_ms = _median_ms(reference_chain, reference_runs, time_min, retort_C)
+    references = []
+    for n_r, n_z, rtol in REFERENCE_GRIDS:
+        F_ref, cold_ref = reference_chain(time_min, retort_C, n_r, n_z, rtol)
+        ref_ms = _median_ms(reference_chain, reference_runs, time_min, retort_C, n_r, n_z, rtol)
+        references.append({
+            "grid": f"{n_r} x {n_z} nodes, rtol {rtol:g}",
+            "ms": ref_ms,
+            "ratio": ref_ms / core_ms,
+            "F_min": F_ref,
+            "F_relative_difference": F_ref / F_core - 1.0,
+            "max_cold_spot_difference_C": float(np.max(np.abs(cold_ref - cold_core))),
+        })
     return {
         "samples": time_min.size,
         "core_ms": core_ms,
-        "reference_ms": ref_ms,
-        "ratio": ref_ms / core_ms,
         "F_core_min": F_core,
-        "F_reference_min": F_ref,
-        "F_relative_difference": F_ref / F_core - 1.0,
-        "max_cold_spot_difference_C": float(np.max(np.abs(cold_ref - cold_core))),
         "peak_cold_spot_C": float(np.max(cold_core)),
+        "references": references,
     }
 
 
 def print_table(r):
-    print(f"2-h record, {r['samples']} samples at 1 s; cylinder 81 x 111 mm, fh = {FH_MIN} min")
-    print(f"{'method':<44}{'median ms':>11}{'F0 [min]':>11}")
-    print(f"{'series + Duhamel + General Method (core)':<44}{r['core_ms']:>11.2f}"
-          f"{r['F_core_min']:>11.4f}")
-    print(f"{'solve_ivp BDF, r-z FV 60 x 80 (reference)':<44}{r['reference_ms']:>11.0f}"
-          f"{r['F_reference_min']:>11.4f}")
-    print(f"speed ratio {r['ratio']:.0f}x; F difference {100 * r['F_relative_difference']:+.3f} %;"
-          f" max cold-spot difference {r['max_cold_spot_difference_C']:.4f} °C;"
-          f" peak cold spot {r['peak_cold_spot_C']:.2f} °C")
+    print(f"2-h record, {r['samples']} samples at 1 s; cylinder 81 x 111 mm, fh = {FH_MIN} min, "
+          f"initial {INITIAL_C} °C; peak cold spot {r['peak_cold_spot_C']:.2f} °C")
+    header = f"{'method':<50}{'median ms':>10}{'ratio':>8}{'F0 [min]':>10}{'dF0':>9}{'max dT':>9}"
+    print(header)
+    print("-" * len(header))
+    print(f"{'core: series + Duhamel + General Method':<50}{r['core_ms']:>10.2f}{'1':>8}"
+          f"{r['F_core_min']:>10.4f}{'':>9}{'':>9}")
+    for ref in r["references"]:
+        name = f"solve_ivp BDF, r-z FV {ref['grid']}"
+        print(f"{name:<50}{ref['ms']:>10.0f}{ref['ratio']:>7.0f}x{ref['F_min']:>10.4f}"
+              f"{100 * ref['F_relative_difference']:>+8.3f}%{ref['max_cold_spot_difference_C']:>7.4f}°C")
 
 
 @pytest.mark.benchmark
 def test_benchmark_core_against_method_of_lines():
     r = run()
     print_table(r)
-    assert abs(r["F_relative_difference"]) < 5e-3  # equal accuracy: reference within 0.5 %
+    fair = r["references"][0]
+    assert abs(fair["F_relative_difference"]) < 5e-3  # equal accuracy: reference within 0.5 %
     assert r["core_ms"] < 20.0
-    assert r["ratio"] >= 50.0
+    assert fair["ratio"] >= 50.0
 
 
 if __name__ == "__main__":
