@@ -518,8 +518,7 @@ def parse_log_text(
         raise RecordError(
             f"line {line_numbers[i]}, column {time_name}: time {time_texts[i]}{unit_text} is "
             f"earlier than {time_texts[i - 1]}{unit_text} at line {line_numbers[i - 1]}; expected "
-            "times "
-            "increasing strictly",
+            "times increasing strictly",
             source=source,
         )
 

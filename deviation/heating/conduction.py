@@ -67,7 +67,10 @@ _MIN_N_TERMS = 30
 
 
 class ModelInputError(ModelError, ValueError):
-    """A heat-model parameter or time grid is out of range (a ``ModelError`` and a ``ValueError``)."""
+    """A heat-model parameter or time grid is out of range.
+
+    Both a ``deviation.errors.ModelError`` and a ``ValueError``.
+    """
 
 
 def _positive(name: str, value) -> float:

@@ -82,7 +82,10 @@ def _response(unaccomplished: Unaccomplished, t: np.ndarray, name: str) -> np.nd
 
 
 def _kernel_means(unaccomplished: Unaccomplished, n_intervals: int, dt: float, name: str):
-    """``K_j`` for ``j = 1..n_intervals``: mean of ``U`` over ``[(j-1)Δt, jΔt]`` (Gauss-Legendre)."""
+    """Kernel means ``K_j``, ``j = 1..n_intervals``: mean of U over ``[(j-1)Δt, jΔt]``.
+
+    Gauss-Legendre quadrature on each interval.
+    """
     # ascending sub-grid: interval by interval, nodes ascending within each
     sub_t = (np.arange(n_intervals)[:, None] + _GL_X[None, :]).ravel() * dt
     u = _response(unaccomplished, sub_t, name).reshape(n_intervals, _GAUSS_NODES)
