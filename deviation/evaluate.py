@@ -224,6 +224,20 @@ def scheduled_profile(process: Process, model: ColdSpotModel) -> prof.RetortProf
     )
 
 
+@functools.lru_cache(maxsize=128)
+def _scheduled_F_cached(process_json: str, conservative: bool) -> float:
+    process = Process.model_validate_json(process_json)
+    model = cold_spot_model(process)
+    return deliver(scheduled_profile(process, model), process.minimum_initial_temperature_C, process, model,
+                   conservative=conservative,
+                   cooling_start_min=process.come_up_time_min + process.process_time_min).F_min
+
+
+def scheduled_F_min(process: Process, *, conservative: bool = False) -> float:
+    """F [min] the model gives for the filed cycle as scheduled (cached per process)."""
+    return _scheduled_F_cached(process.model_dump_json(), conservative)
+
+
 def _continue_as_filed(profile: prof.RetortProfile, process: Process, analysis: prof.CycleAnalysis,
                        model: ColdSpotModel, extra_hold_min: float = 0.0) -> tuple[prof.RetortProfile, float]:
     """The record so far, then the rest of the filed cycle from its last point.
@@ -274,14 +288,27 @@ def _insert_hold(profile: prof.RetortProfile, at_min: float, extra_min: float, P
 # The pipeline
 
 
+@functools.lru_cache(maxsize=64)
+def _parse_cached(text: str, source: str, kind: str) -> prof.RetortProfile:
+    """Parse a log once: re-evaluations (what-if, TUI refresh, replay) reuse the parsed record."""
+    return prof.parse_log_text(text, source=source, kind=kind)
+
+
+@functools.lru_cache(maxsize=1)
+def default_rule_set():
+    """The shipped rules, read once per process."""
+    from deviation import rules as rules_mod
+
+    return rules_mod.load_rule_set([])
+
+
 def build_retort_profile(loaded: LoadedCase, model: ColdSpotModel) -> prof.RetortProfile:
     """The retort profile: the log if there is one, else the filed cycle with the events laid over it."""
     case = loaded.case
     process, dev = case.process, case.deviation
     events = dev.events
     if loaded.retort_log_text is not None:
-        profile = prof.parse_log_text(loaded.retort_log_text, source=loaded.retort_log_source or "retort log",
-                                      kind="retort")
+        profile = _parse_cached(loaded.retort_log_text, loaded.retort_log_source or "retort log", "retort")
     else:
         come_up = process.come_up_time_min
         hold = process.process_time_min
@@ -433,8 +460,8 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
 
     # Delivered lethality: measured cold spot integrated directly, else the model on the record.
     if loaded.cold_spot_log_text is not None:
-        measured = prof.parse_log_text(loaded.cold_spot_log_text,
-                                       source=loaded.cold_spot_log_source or "cold-spot log", kind="cold-spot")
+        measured = _parse_cached(loaded.cold_spot_log_text, loaded.cold_spot_log_source or "cold-spot log",
+                                 "cold-spot")
         F, cum = general_method(measured.time_min, measured.temperature_C, process.reference_temperature_C,
                                 process.z_C, conservative=conservative)
         retort_on = np.interp(measured.time_min, profile.time_min, profile.temperature_C)
@@ -445,15 +472,13 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
                             conservative=conservative, cooling_start_min=analysis.hold_end_min)
         source = model.name
 
-    scheduled = deliver(scheduled_profile(process, model), process.minimum_initial_temperature_C, process, model,
-                        conservative=conservative,
-                        cooling_start_min=process.come_up_time_min + process.process_time_min)
-    if scheduled.F_min < process.target_F_min:
+    scheduled_F = scheduled_F_min(process, conservative=conservative)
+    if scheduled_F < process.target_F_min:
         flags.append(_flag("scheduled-F-below-target",
-                           f"The model gives F0 {scheduled.F_min:.2f} min for the filed process as scheduled, "
+                           f"The model gives F0 {scheduled_F:.2f} min for the filed process as scheduled, "
                            f"below the filed target {process.target_F_min:.2f} min: it does not reproduce the "
                            "filed process, so the lethality computed here is not fully established.",
-                           value=scheduled.F_min))
+                           value=scheduled_F))
     cf_flags, cf_rows = _critical_factor_flags(case)
     flags += cf_flags
     flags += _implausible_flags(case, profile)
@@ -497,7 +522,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     facts: dict[str, float | bool | None] = {
         "delivered_F_min": delivered.F_min,
         "target_F_min": process.target_F_min,
-        "scheduled_F_min": scheduled.F_min,
+        "scheduled_F_min": scheduled_F,
         "F_margin_min": delivered.F_min - process.target_F_min,
         "botulinum_log_reductions": bot,
         "botulinum_log_reductions_required": micro.botulinum_log_reductions_required,
@@ -516,7 +541,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         "come_up_excess_min": (max(analysis.come_up_min - process.come_up_time_min, 0.0)
                                if analysis.come_up_min is not None else None),
         "initial_temperature_deficit_C": max(process.minimum_initial_temperature_C - dev.initial_temperature_C, 0.0),
-        "scheduled_F_ratio": scheduled.F_min / process.target_F_min,
+        "scheduled_F_ratio": scheduled_F / process.target_F_min,
         "degree_minutes_below_C_min": float(sum(i.degree_minutes_below for i in analysis.low_intervals)),
         "deviation_found": bool(deviation_codes),
         "covered_by_alternate": bool(alternates),
@@ -531,7 +556,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     if rule_set is not False:
         from deviation import rules as rules_mod  # the rules layer sits after the core
 
-        rs = rule_set if rule_set is not None else rules_mod.load_rule_set([])
+        rs = rule_set if rule_set is not None else default_rule_set()
         guidance = rules_mod.evaluate_guidance(rs, facts, [f.code for f in flags]).model_dump(mode="json")
 
     L = lethal_rate(delivered.cold_spot_C, process.reference_temperature_C, process.z_C)
@@ -544,7 +569,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         model=source,
         conservative=conservative,
         delivered_F_min=delivered.F_min,
-        scheduled_F_min=scheduled.F_min,
+        scheduled_F_min=scheduled_F,
         target_F_min=process.target_F_min,
         F_margin_min=delivered.F_min - process.target_F_min,
         projected_F_min=projected,
@@ -552,7 +577,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         extension_reason=reason,
         spoilage_probability=p,
         target_spoilage_probability=facts["target_spoilage_probability"],
-        scheduled_spoilage_probability=_spoilage(scheduled.F_min, process),
+        scheduled_spoilage_probability=_spoilage(scheduled_F, process),
         expected_nonsterile_containers=facts["expected_nonsterile_containers"],
         botulinum_log_reductions=bot,
         botulinum_log_reductions_required=micro.botulinum_log_reductions_required,
@@ -616,7 +641,8 @@ def _extension(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.C
         return deliver(ext, dev.initial_temperature_C, process, model, conservative=conservative,
                        cooling_start_min=cool_at).F_min - target
 
-    base = F_with(0.0)
+    # With nothing added, a finished cycle's F is the delivered F already computed.
+    base = F_with(0.0) if running else delivered.F_min - target
     if base >= 0.0:
         return 0.0, None
     hi = 5.0

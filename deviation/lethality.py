@@ -30,13 +30,18 @@ F0_Z_C = 10.0  # 18 °F
 
 
 class LethalityInputError(RecordError, ValueError):
-    """A temperature history or lethality parameter is unusable (a ``RecordError`` and a ``ValueError``)."""
+    """A temperature history or lethality parameter is unusable.
+
+    Both a ``deviation.errors.RecordError`` and a ``ValueError``.
+    """
 
 
 def _z(z_C) -> float:
     z = float(z_C)
     if not math.isfinite(z) or z <= 0.0:
-        raise LethalityInputError(f"z_C = {z_C!r}; expected a finite temperature difference > 0 [°C]")
+        raise LethalityInputError(
+            f"z_C = {z_C!r}; expected a finite temperature difference > 0 [°C]"
+        )
     return z
 
 
@@ -44,7 +49,8 @@ def _reference(reference_temperature_C) -> float:
     ref = float(reference_temperature_C)
     if not math.isfinite(ref):
         raise LethalityInputError(
-            f"reference_temperature_C = {reference_temperature_C!r}; expected a finite temperature [°C]"
+            f"reference_temperature_C = {reference_temperature_C!r}; "
+            "expected a finite temperature [°C]"
         )
     return ref
 
@@ -126,13 +132,17 @@ def general_method(
     t = np.asarray(time_min, dtype=float)
     temperature = np.asarray(temperature_C, dtype=float)
     if t.ndim != 1 or t.size == 0:
-        raise LethalityInputError(f"time_min has shape {t.shape}; expected a non-empty 1-D array [min]")
+        raise LethalityInputError(
+            f"time_min has shape {t.shape}; expected a non-empty 1-D array [min]"
+        )
     if temperature.shape != t.shape:
         raise LethalityInputError(
             f"temperature_C has shape {temperature.shape}; expected the shape of time_min {t.shape}"
         )
     if not np.all(np.isfinite(t)):
-        raise LethalityInputError("time_min contains a non-finite value; expected finite times [min]")
+        raise LethalityInputError(
+            "time_min contains a non-finite value; expected finite times [min]"
+        )
     if not np.all(np.isfinite(temperature)):
         bad = int(np.flatnonzero(~np.isfinite(temperature))[0])
         raise LethalityInputError(

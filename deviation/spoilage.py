@@ -47,7 +47,9 @@ def _array(name: str, value, *, minimum: float, strict: bool = False) -> np.ndar
     if np.any(bad):
         found = arr.ravel()[int(np.flatnonzero(bad.ravel())[0])]
         relation = ">" if strict else ">="
-        raise SpoilageInputError(f"{name} = {found!r}; expected a finite number {relation} {minimum:g}")
+        raise SpoilageInputError(
+            f"{name} = {found!r}; expected a finite number {relation} {minimum:g}"
+        )
     return arr
 
 

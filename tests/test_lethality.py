@@ -51,7 +51,8 @@ def test_single_sample_and_repeated_times():
 )
 def test_conservative_never_exceeds_trapezoid(steps, temps, conservative_z):
     t = np.concatenate([[0.0], np.cumsum(steps)])
-    temperature = np.array(temps.draw(st.lists(st.floats(20.0, 140.0), min_size=t.size, max_size=t.size)))
+    readings = st.lists(st.floats(20.0, 140.0), min_size=t.size, max_size=t.size)
+    temperature = np.array(temps.draw(readings))
     F_c, cum_c = general_method(t, temperature, 121.1, conservative_z, conservative=True)
     F_t, cum_t = general_method(t, temperature, 121.1, conservative_z)
     assert F_c <= F_t * (1 + 1e-12)

@@ -295,6 +295,26 @@ def test_lethality_not_established_is_reprocess_or_destroy_with_nothing_computed
     ]
 
 
+def test_running_cycle_is_evaluated_again_not_condemned_on_lethality_so_far(defaults):
+    # The record stops mid-hold: F0 so far is a lower bound, the rest of the cycle adds to it.
+    result = guidance(
+        defaults, ["record-ends-before-cooling"], delivered_F_min=0.5, deviation_found=True,
+        cycle_running=True,
+    )
+    assert result.disposition == "evaluate"
+    assert "botulinum-12d-not-met" not in result.fired
+    assert "below-filed-target" not in result.fired
+    assert "Evaluate again when the cycle has ended and the whole record is in." in result.actions
+    assert (
+        "So far the cold spot has received F0 0.50 min (2.4 log reductions of C. botulinum) "
+        "against the filed target 6.00 min; the rest of the cycle adds to it."
+        in [reason.text for reason in result.reasons]
+    )
+    # cycle_running without the flag (an inconsistent input) keeps the severe reading
+    result = guidance(defaults, [], delivered_F_min=0.5, deviation_found=True, cycle_running=True)
+    assert result.disposition == "reprocess-or-destroy"
+
+
 def test_unknown_comparison_does_not_fire_but_is_reported(defaults):
     result = guidance(defaults, delivered_F_min=None, deviation_found=False)
     assert "below-filed-target" not in result.fired
@@ -363,6 +383,8 @@ def test_explain_traces_each_sub_condition_with_the_facts(defaults):
         "all of → true",
         "  delivered_F_min = 4.12 < target_F_min = 6.0 → true",
         "  botulinum_log_reductions = 19.619 >= botulinum_log_reductions_required = 12.0 → true",
+        "  not → true",
+        "    flag record-ends-before-cooling absent → false",
     ]
     assert explanations["short-hold"].trace == [
         "all of → true",

@@ -61,9 +61,9 @@ _SLAB_SHORT_TIME_FOURIER = 0.05
 _SLAB_ERFC_TERMS = 6
 
 DEFAULT_N_TERMS = 100
-# With 30 or more Bessel terms the short-time bound used for the cylinder (below) is under 1e-25
-# wherever it is used, i.e. exact in double precision.
-_MIN_N_TERMS = 30
+# With 40 or more Bessel terms the short-time bound used for the cylinder (below) is within 1e-22
+# of the true value wherever it is used, i.e. exact in double precision.
+_MIN_N_TERMS = 40
 
 
 class ModelInputError(ModelError, ValueError):
@@ -155,10 +155,11 @@ def _cylinder_sorted(fourier_sorted: np.ndarray, n_terms: int) -> np.ndarray:
 
     The truncated series is complete to double precision once the first omitted term is
     negligible, ``β_{N+1}² Fo > 40``. At shorter times the centre has not yet felt the surface:
-    by the comparison principle the cylinder's axis heats no faster than the centre of the square
-    of half-side R/√2 inscribed in it, so ``1 - S <= U_slab(R/√2)²``, which is below 1e-25 there
-    for ``n_terms >= 30`` (below 1e-100 for the default 100 terms); that bound is used, so S(0) = 1 exactly and the truncated series'
-    oscillation at t -> 0+ never appears.
+    by the comparison principle the cylinder's axis heats no faster than the axis of the square
+    prism of half-side R/√2 inscribed in it, so ``S_slab(R/√2)² <= S <= 1`` and the gap is below
+    1e-22 wherever it is used for ``n_terms >= 40`` (below 1e-100 for the default 100 terms).
+    That bound is used there, so S(0) = 1 exactly and the truncated series' oscillation at
+    t -> 0+ never appears.
     """
     betas = _bessel_j0_zeros(n_terms + 1)
     complete_from = _NEGLIGIBLE_EXPONENT / betas[-1] ** 2
@@ -166,9 +167,8 @@ def _cylinder_sorted(fourier_sorted: np.ndarray, n_terms: int) -> np.ndarray:
     s = np.zeros_like(fourier_sorted)
     n_short = int(np.searchsorted(fourier_sorted, complete_from, side="left"))
     if n_short:
-        # square of half-side R/sqrt(2): Fo on that half-side is 2*Fo
-        u_square = (1.0 - _slab_sorted(2.0 * fourier_sorted[:n_short], n_terms)) ** 2
-        s[:n_short] = 1.0 - u_square
+        # square prism of half-side R/sqrt(2) (product of two slabs): Fo on that half-side is 2 Fo
+        s[:n_short] = _slab_sorted(2.0 * fourier_sorted[:n_short], n_terms) ** 2
     coeffs = 2.0 / (betas * j1(betas))
     _add_exponential_terms(s, fourier_sorted, coeffs, betas**2, n_short)
     return s
@@ -204,7 +204,7 @@ def slab_centre_unaccomplished(
     thickness_m : float
         Full thickness of the slab [m].
     n_terms : int, optional
-        Number of cosine-series terms (>= 30).
+        Number of cosine-series terms (>= 40).
 
     Returns
     -------
@@ -242,7 +242,7 @@ def cylinder_centre_unaccomplished(
     height_m : float
         Inside (full) height of the container [m].
     n_terms : int, optional
-        Number of terms in each series (>= 30). Short times are handled without oscillation
+        Number of terms in each series (>= 40). Short times are handled without oscillation
         whatever the number of terms.
 
     Returns
@@ -283,7 +283,7 @@ def brick_centre_unaccomplished(
     length_m, width_m, thickness_m : float
         Inside dimensions of the container [m].
     n_terms : int, optional
-        Number of terms in each slab series (>= 30).
+        Number of terms in each slab series (>= 40).
 
     Returns
     -------

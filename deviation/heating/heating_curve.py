@@ -1,7 +1,8 @@
 """Empirical heating-curve step response (Ball's first-order-with-lag model).
 
 On ``log(T_R - T)`` against time a heat-penetration curve is, after a lag, a straight line of slope
-``-1/fh`` whose intercept at zero time is ``jh · (T_R - T_0)`` (Ball [1]). Read as the cold spot's
+``-1/fh`` whose intercept at zero time (the corrected zero when the come-up is not instantaneous) is
+``jh · (T_R - T_0)`` (Ball [1]). Read as the cold spot's
 response to a step in retort temperature at ``t = 0`` it gives the unaccomplished fraction
 
     S(t) = min(1, jh · 10^(-t/fh)),

@@ -2,7 +2,7 @@
 
 For a linear heat-transfer model with uniform initial temperature ``T_0`` and unit-step response
 ``U(t) = 1 - S(t)`` (``S`` the unaccomplished fraction), the cold-spot temperature for a retort
-temperature history ``T_R(t)`` is Duhamel's integral ([1], §1.14)
+temperature history ``T_R(t)`` is Duhamel's integral ([1], §1.14, section from memory)
 
     T(t) = T_0 + (T_R(0) - T_0) U(t) + ∫_0^t T_R'(τ) U(t - τ) dτ.
 

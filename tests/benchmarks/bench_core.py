@@ -21,7 +21,11 @@ import pytest
 import scipy.sparse as sp
 from scipy.integrate import solve_ivp
 
-from deviation.heating import cylinder_centre_unaccomplished, diffusivity_from_fh_cylinder, superpose
+from deviation.heating import (
+    cylinder_centre_unaccomplished,
+    diffusivity_from_fh_cylinder,
+    superpose,
+)
 from deviation.lethality import general_method
 
 RADIUS_M = 0.081 / 2.0
@@ -148,7 +152,8 @@ def print_table(r):
     for ref in r["references"]:
         name = f"solve_ivp BDF, r-z FV {ref['grid']}"
         print(f"{name:<50}{ref['ms']:>10.0f}{ref['ratio']:>7.0f}x{ref['F_min']:>10.4f}"
-              f"{100 * ref['F_relative_difference']:>+8.3f}%{ref['max_cold_spot_difference_C']:>7.4f}°C")
+              f"{100 * ref['F_relative_difference']:>+8.3f}%"
+              f"{ref['max_cold_spot_difference_C']:>7.4f}°C")
 
 
 @pytest.mark.benchmark

@@ -19,7 +19,8 @@ from deviation.heating.superposition import superpose
 RADIUS_M, HEIGHT_M = 0.0405, 0.111
 ALPHA_M2_S = diffusivity_from_fh_cylinder(40.0, RADIUS_M, HEIGHT_M)
 CONDUCTION = partial(
-    cylinder_centre_unaccomplished, diffusivity_m2_s=ALPHA_M2_S, radius_m=RADIUS_M, height_m=HEIGHT_M
+    cylinder_centre_unaccomplished,
+    diffusivity_m2_s=ALPHA_M2_S, radius_m=RADIUS_M, height_m=HEIGHT_M,
 )
 HEATING_CURVE = partial(step_unaccomplished, fh_min=30.0, jh=1.8)
 KERNELS = {"conduction": CONDUCTION, "heating_curve": HEATING_CURVE}
