@@ -19,7 +19,7 @@ from scipy.optimize import brentq
 from deviation import ENGINE_VERSION
 from deviation import profile as prof
 from deviation.case import Case, LoadedCase, Process
-from deviation.errors import ModelError, RecordError
+from deviation.errors import CaseError, ModelError, RecordError
 from deviation.heating import conduction, heating_curve
 from deviation.heating.superposition import superpose
 from deviation.lethality import general_method, lethal_rate
@@ -322,9 +322,12 @@ def build_retort_profile(loaded: LoadedCase, model: ColdSpotModel) -> prof.Retor
                                  come_up_min=come_up, hold_min=hold,
                                  cooling_min=cooling_time_min(process, model))
         profile = replace(profile, source="filed cycle + events" if events else "filed cycle")
-    for ev in events:
+    for i, ev in enumerate(events):
         if ev.kind == "temperature-low":
-            profile = prof.apply_temperature_low(profile, ev.start_min, ev.end_min, ev.temperature_C)
+            try:
+                profile = prof.apply_temperature_low(profile, ev.start_min, ev.end_min, ev.temperature_C)
+            except RecordError as exc:
+                raise CaseError(f"deviation.events[{i}]: {exc.message}", source=loaded.source) from None
     return profile
 
 

@@ -1072,6 +1072,11 @@ class RuleExplanation(BaseModel):
     not_computed: list[str]
     source: str
 
+    @property
+    def rule_id(self) -> str:
+        """The rule's id (same as ``id``; the name GuidanceReason uses)."""
+        return self.id
+
 
 class _Shown:
     """A fact for ``str.format_map``: ``n/a`` when not computed, never an exception."""

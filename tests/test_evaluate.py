@@ -204,3 +204,16 @@ def test_any_log_gives_an_evaluation_or_a_clear_error(rows, sort):
 def test_lethal_rate_used_is_the_published_form():
     # Lethal rate 10^((T - Tref)/z): L(111.1) = 0.1 with z = 10 (Stumbo 1973).
     assert lethal_rate(np.array([111.1]), 121.1, 10.0)[0] == pytest.approx(0.1)
+
+
+def test_event_outside_the_cycle_is_a_case_error():
+    from deviation.case import parse_case
+    from deviation.errors import CaseError
+
+    data = _base.case.model_dump()
+    data["deviation"]["events"] = [{"kind": "temperature-low", "start_min": 500, "end_min": 510,
+                                    "temperature_C": 100}]
+    with pytest.raises(CaseError) as info:
+        evaluate_case(replace(_base, case=parse_case(data)))
+    assert info.value.message == ("deviation.events[0]: temperature-low event from 500 to 510 min lies outside "
+                                  "the record (0 to 83 min); expected an interval within the record")

@@ -111,10 +111,15 @@ def _add_exponential_terms(out, fourier_sorted, coeffs, rates, start):
     series terms (at most ``n_terms``), never over samples.
     """
     stops = np.searchsorted(fourier_sorted, _NEGLIGIBLE_EXPONENT / rates, side="right")
+    work = np.empty(max(int(stops[0]) - start, 0))  # one buffer: no temporaries per term
     for c, r, stop in zip(coeffs, rates, stops):
         if stop <= start:
             break  # rates ascend: every later term is negligible everywhere too
-        out[start:stop] += c * np.exp(-r * fourier_sorted[start:stop])
+        buf = work[: stop - start]
+        np.multiply(fourier_sorted[start:stop], -r, out=buf)
+        np.exp(buf, out=buf)
+        buf *= c
+        out[start:stop] += buf
 
 
 def _slab_sorted(fourier_sorted: np.ndarray, n_terms: int) -> np.ndarray:
