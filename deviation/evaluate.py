@@ -113,7 +113,7 @@ class Evaluation(BaseModel):
     critical_factors: list[dict[str, Any]]
     flags: list[FlagOut]
     cycle: CycleOut
-    facts: dict[str, float | bool | None]
+    facts: dict[str, float | bool | str | None]
     guidance: dict[str, Any] | None
     caution: str = CAUTION
     cold_spot: ColdSpot
@@ -522,7 +522,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     bot = float(log_reductions(delivered.F_min, micro.botulinum_D_min))
     deviation_codes = codes - {"alternate-process-met"}
     low = analysis.lowest_during_hold_C
-    facts: dict[str, float | bool | None] = {
+    facts: dict[str, float | bool | str | None] = {
         "delivered_F_min": delivered.F_min,
         "target_F_min": process.target_F_min,
         "scheduled_F_min": scheduled_F,
@@ -554,6 +554,11 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         "cycle_running": running,
         "measured_cold_spot": source == "measured",
         "gap_worst_case_F_min": worst_gap_F,
+        # Text for reasons only (rules cannot compare on it): the factors out, with their limits.
+        "critical_factors_out": "; ".join(
+            f"{r['name']} {r['value']:g} {r['unit']} ("
+            + (f"min {r['min']:g}" if r["min"] is not None and r["value"] < r["min"] else f"max {r['max']:g}")
+            + f" {r['unit']})" for r in cf_rows if r["out"]) or None,
     }
     guidance = None
     if rule_set is not False:
