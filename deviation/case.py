@@ -241,6 +241,21 @@ class CriticalFactorReading(_Model):
     note: str = ""
 
 
+class UncertaintySpec(_Model):
+    """Spreads of the uncertain inputs for the Monte Carlo estimate (defaults: common practice)."""
+
+    samples: Annotated[int, Field(ge=10, le=100_000)] = 1000
+    seed: int = 20261202
+    fh_relative_sd: Annotated[float, Field(ge=0, le=1)] = Field(
+        0.10, description="Relative standard deviation of fh (or of the diffusivity) [-]")
+    jh_relative_sd: Annotated[float, Field(ge=0, le=1)] = Field(
+        0.10, description="Relative standard deviation of jh (heating-curve model) [-]")
+    initial_temperature_sd_C: Annotated[float, Field(ge=0, le=30)] = Field(
+        1.0, description="Standard deviation of the initial temperature [°C]")
+    spores_log10_sd: Annotated[float, Field(ge=0, le=5)] = Field(
+        0.5, description="Standard deviation of log10(spores per container) [-]")
+
+
 class Deviation(_Model):
     """What happened to this lot."""
 
@@ -259,6 +274,7 @@ class Deviation(_Model):
     reprocess_from_temperature_C: TemperatureC | None = None
     events: list[DeviationEvent] = Field(default_factory=list)
     critical_factor_readings: list[CriticalFactorReading] = Field(default_factory=list)
+    uncertainty: UncertaintySpec | None = None
     description: str = ""
 
 

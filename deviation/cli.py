@@ -53,6 +53,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.add_argument("--conservative", action="store_true",
                    help="read between readings at the lower one; never credit more than the lower lethal rate")
+    p.add_argument("--uncertainty", action="store_true",
+                   help="Monte Carlo over fh, jh, initial temperature and spores (spreads from "
+                        "[deviation.uncertainty] or the documented defaults)")
     p.add_argument("--db", help="record store (for process_ref)", default=None)
     _add_rules_option(p)
 
@@ -75,13 +78,18 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _extensions():
-    """Command groups that live in their own modules (records, processes, ...)."""
+    """Command groups that live in their own modules, each with ``register(subparsers)``."""
+    import importlib
+
     out = []
-    try:
-        from deviation import cli_records
-        out.append(("records", cli_records.register))
-    except ImportError:  # pragma: no cover - the records layer is optional until it lands
-        pass
+    for name in ("cli_records", "cli_fit", "cli_report", "cli_process", "cli_watch", "cli_tui"):
+        try:
+            module = importlib.import_module(f"deviation.{name}")
+        except ModuleNotFoundError as exc:  # a layer that has not landed yet
+            if exc.name != f"deviation.{name}":
+                raise
+            continue
+        out.append((name, module.register))
     return out
 
 
@@ -108,7 +116,8 @@ def _evaluate(args) -> int:
     from deviation.evaluate import evaluate_case
 
     loaded = load_case(args.case, process_resolver=_resolver(args))
-    ev = evaluate_case(loaded, conservative=args.conservative, rule_set=_load_rules(args))
+    ev = evaluate_case(loaded, conservative=args.conservative, rule_set=_load_rules(args),
+                       uncertainty=True if args.uncertainty else None)
     if args.json:
         _print_json(ev.model_dump(mode="json"))
     else:

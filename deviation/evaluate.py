@@ -23,6 +23,7 @@ from deviation.errors import CaseError, ModelError, RecordError
 from deviation.heating import conduction, heating_curve
 from deviation.heating.superposition import superpose
 from deviation.lethality import general_method, lethal_rate
+from deviation.uncertainty import lognormal_factors, sample_F, summarise
 from deviation.spoilage import (
     expected_nonsterile_containers,
     log_reductions,
@@ -100,6 +101,10 @@ class Evaluation(BaseModel):
     projected_F_min: float | None
     extension_to_target_min: float | None
     extension_reason: str | None
+    reprocess_F_min: float | None
+    total_F_with_reprocess_min: float | None
+    reprocess: dict[str, Any] | None
+    uncertainty: dict[str, Any] | None
     spoilage_probability: float
     target_spoilage_probability: float
     scheduled_spoilage_probability: float
@@ -176,18 +181,26 @@ class Delivered:
     F_min: float
 
 
-def deliver(profile: prof.RetortProfile, initial_C: float, process: Process, model: ColdSpotModel,
-            *, conservative: bool, cooling_start_min: float | None) -> Delivered:
-    """Predict the cold spot for a retort profile and integrate its lethality (General Method)."""
+def _grid(profile: prof.RetortProfile, conservative: bool, cooling_start_min: float | None):
+    """The uniform grid (from 0) the models run on, the retort on it, and steam-off on the grid."""
     t0 = float(profile.time_min[0])
     shifted = replace(profile, time_min=profile.time_min - t0)
     step = _grid_step(shifted.time_min)
     grid, retort = prof.resample_uniform(shifted, step, conservative=conservative)
-    cooling_kw = {}
-    if model.cooling is not None and cooling_start_min is not None:
+    start = None
+    if cooling_start_min is not None:
         # Snap steam-off down to the grid, so the segment in which the retort starts to fall
         # responds with the cooling kernel wherever steam-off falls inside it.
         start = math.floor((cooling_start_min - t0) / step + 1e-9) * step
+    return t0, grid, retort, start
+
+
+def deliver(profile: prof.RetortProfile, initial_C: float, process: Process, model: ColdSpotModel,
+            *, conservative: bool, cooling_start_min: float | None) -> Delivered:
+    """Predict the cold spot for a retort profile and integrate its lethality (General Method)."""
+    t0, grid, retort, start = _grid(profile, conservative, cooling_start_min)
+    cooling_kw = {}
+    if model.cooling is not None and start is not None:
         cooling_kw = dict(cooling_unaccomplished=model.cooling, cooling_start_min=start)
     cold = superpose(grid, retort, initial_C, model.heating, **cooling_kw)
     F, cum = general_method(grid, cold, process.reference_temperature_C, process.z_C,
@@ -431,7 +444,7 @@ def _gap_worst_case_F(profile: prof.RetortProfile, analysis: prof.CycleAnalysis,
 
 
 def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=None,
-                  what_if: bool = True) -> Evaluation:
+                  what_if: bool = True, uncertainty: bool | None = None) -> Evaluation:
     """Evaluate one deviation case.
 
     Parameters
@@ -440,7 +453,9 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     conservative : read the retort between two readings at the lower one, and never credit
         more than the lower lethal rate between samples.
     rule_set : guidance rules (``deviation.rules.RuleSet``); ``None`` loads the defaults.
-    what_if : compute the extension to target (a root search: a few more model runs).
+    what_if : compute the extension to target (a root search: a few more model runs) and the
+        lethality of a full reprocess.
+    uncertainty : run the Monte Carlo estimate (``None``: when the case has ``[deviation.uncertainty]``).
     """
     case = loaded.case
     process, dev = case.process, case.deviation
@@ -502,6 +517,16 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
                             conservative=conservative, cooling_start_min=cool_at).F_min
     extension, reason = (_extension(loaded, profile, analysis, model, delivered, conservative, source,
                                     running) if what_if else (None, "not computed"))
+
+    reprocess = _reprocess(loaded, model, delivered.F_min, conservative) if what_if else None
+    if uncertainty is None:
+        uncertainty = dev.uncertainty is not None
+    mc = None
+    if uncertainty:
+        from deviation.case import UncertaintySpec
+
+        mc = _monte_carlo(loaded, profile, analysis, model, dev.uncertainty or UncertaintySpec(),
+                          conservative, source)
 
     # Lethality established / fully established.
     gap_over = analysis.max_gap_min > dev.record_gap_limit_min
@@ -583,6 +608,10 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         projected_F_min=projected,
         extension_to_target_min=extension,
         extension_reason=reason,
+        reprocess_F_min=reprocess["reprocess_F_min"] if reprocess else None,
+        total_F_with_reprocess_min=reprocess["total_F_with_reprocess_min"] if reprocess else None,
+        reprocess=reprocess,
+        uncertainty=mc,
         spoilage_probability=p,
         target_spoilage_probability=facts["target_spoilage_probability"],
         scheduled_spoilage_probability=_spoilage(scheduled_F, process),
@@ -661,6 +690,78 @@ def _extension(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.C
     root = brentq(F_with, 0.0, hi, xtol=0.01)
     # Round up to the next 0.1 min: never report less time than the target needs.
     return math.ceil(root * 10.0 - 1e-9) / 10.0, None
+
+
+def _monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.CycleAnalysis,
+                 model: ColdSpotModel, spec, conservative: bool, source: str) -> dict[str, Any]:
+    """Monte Carlo over fh (or diffusivity), jh, initial temperature and spores per container."""
+    process, dev = loaded.case.process, loaded.case.deviation
+    micro = process.microbiology
+    n = spec.samples
+    rng = np.random.default_rng(spec.seed)
+    out: dict[str, Any] = {"samples": n, "seed": spec.seed, "spreads": spec.model_dump(exclude={"samples", "seed"})}
+    if source == "measured":
+        out["reason"] = "the cold spot is measured: only the spore load is uncertain"
+        F = np.full(n, _measured_F(loaded, conservative))
+    else:
+        fh_factor = lognormal_factors(rng, spec.fh_relative_sd, n)
+        jh_factor = lognormal_factors(rng, spec.jh_relative_sd, n)
+        initial = dev.initial_temperature_C + spec.initial_temperature_sd_C * rng.standard_normal(n)
+        t0, grid, retort, start = _grid(profile, conservative, analysis.hold_end_min)
+        hp = process.heat_penetration
+        if model.name == "heating-curve":
+            fh = hp.fh_min * fh_factor
+            jh = hp.jh * jh_factor
+
+            def step(t2, rows):
+                return np.minimum(1.0, jh[rows, None] * 10.0 ** (-t2 / fh[rows, None]))
+        else:
+            # Conduction: the step response depends on alpha*t only, and fh is proportional to
+            # 1/alpha, so a sample with fh scaled by f has S(t / f). Tabulate once, interpolate.
+            t_tab = np.linspace(0.0, grid[-1] / fh_factor.min() + 1.0, 8192)
+            S_tab = np.asarray(model.heating(t_tab), float)
+            scale = 1.0 / fh_factor
+
+            def step(t2, rows):
+                return np.interp(t2 * scale[rows, None], t_tab, S_tab)
+        cooling = model.cooling if start is not None else None
+        F = sample_F(grid, retort, initial, step, reference_temperature_C=process.reference_temperature_C,
+                     z_C=process.z_C, conservative=conservative, cooling_step=cooling,
+                     cooling_start_min=start if cooling is not None else None)
+    spores = micro.spores_per_container * 10.0 ** (spec.spores_log10_sd * rng.standard_normal(n))
+    p = nonsterile_probability(F, micro.spoilage_D_min, spores)
+    out.update(summarise(F, np.asarray(p), target_F_min=process.target_F_min,
+                         botulinum_D_min=micro.botulinum_D_min))
+    return out
+
+
+def _measured_F(loaded: LoadedCase, conservative: bool) -> float:
+    measured = _parse_cached(loaded.cold_spot_log_text, loaded.cold_spot_log_source or "cold-spot log", "cold-spot")
+    p = loaded.case.process
+    return float(general_method(measured.time_min, measured.temperature_C, p.reference_temperature_C, p.z_C,
+                                conservative=conservative)[0])
+
+
+def _reprocess(loaded: LoadedCase, model: ColdSpotModel, delivered_F: float, conservative: bool) -> dict[str, Any]:
+    """F a full reprocess as filed adds, from a uniform product temperature, and the total.
+
+    F values at the same Tref and z add. The reprocess starts from ``reprocess_from_temperature_C``
+    when given, else from the filed minimum initial temperature (a reprocess must start from a
+    re-established initial temperature).
+    """
+    process, dev = loaded.case.process, loaded.case.deviation
+    start_C = dev.reprocess_from_temperature_C
+    basis = "deviation.reprocess_from_temperature_C"
+    if start_C is None:
+        start_C, basis = process.minimum_initial_temperature_C, "the filed minimum initial temperature"
+    come_up_start = process.come_up_start_temperature_C
+    profile = _filed_profile(process, start_C=start_C if come_up_start is None else come_up_start,
+                             come_up_min=process.come_up_time_min, hold_min=process.process_time_min,
+                             cooling_min=cooling_time_min(process, model))
+    F = deliver(profile, start_C, process, model, conservative=conservative,
+                cooling_start_min=process.come_up_time_min + process.process_time_min).F_min
+    return {"reprocess_F_min": F, "total_F_with_reprocess_min": delivered_F + F,
+            "reprocess_from_temperature_C": start_C, "reprocess_from": basis}
 
 
 def evaluate_snapshot(snapshot: dict, **kw) -> Evaluation:

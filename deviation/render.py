@@ -78,6 +78,10 @@ def figures_table(ev: Evaluation) -> Table:
                   "at process temperature, before cooling")
     elif ev.extension_reason:
         t.add_row("extra hold to reach target", "n/a", ev.extension_reason)
+    if ev.reprocess_F_min is not None:
+        t.add_row("a full reprocess as filed adds", f"{ev.reprocess_F_min:.2f} min",
+                  f"total {ev.total_F_with_reprocess_min:.2f} min, from "
+                  f"{ev.reprocess['reprocess_from_temperature_C']:.1f} °C")
     t.add_row("spoilage probability per container", fmt_probability(ev.spoilage_probability),
               f"filed target: {fmt_probability(ev.target_spoilage_probability)}")
     t.add_row("expected nonsterile containers in lot", f"{ev.expected_nonsterile_containers:.3g}", "")
@@ -90,6 +94,12 @@ def figures_table(ev: Evaluation) -> Table:
                   f"from {c.hold_start_min:.1f} to {c.hold_end_min:.1f} min" if c.hold_end_min is not None else "")
     if c.lowest_during_hold_C is not None:
         t.add_row("lowest retort during hold", f"{c.lowest_during_hold_C:.1f} °C", "")
+    mc = ev.uncertainty
+    if mc:
+        t.add_row("F0, 5th percentile (Monte Carlo)", f"{mc['F_p05_min']:.2f} min",
+                  f"{mc['samples']} samples, seed {mc['seed']}")
+        t.add_row("probability F0 below target", f"{mc['probability_F_below_target']:.1%}", "")
+        t.add_row("spoilage probability, 95th percentile", fmt_probability(mc["spoilage_probability_p95"]), "")
     t.add_row("lethality established", "yes" if ev.lethality_established else "NO",
               "fully" if ev.lethality_fully_established else "not fully (see flags)")
     return t
