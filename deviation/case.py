@@ -114,20 +114,30 @@ class Container(_Model):
 class HeatPenetration(_Model):
     """Heat-penetration parameters of the slowest-heating point (the cold spot)."""
 
-    model: Literal["conduction", "heating-curve"]
+    model: Literal["conduction", "heating-curve", "finite-difference"]
     fh_min: Positive | None = Field(None, description="Heating rate factor fh [min]")
     jh: Positive | None = Field(None, description="Heating lag factor jh [-]")
     fc_min: Positive | None = Field(None, description="Cooling rate factor fc [min]")
     jc: Positive | None = Field(None, description="Cooling lag factor jc [-]")
     thermal_diffusivity_m2_s: Positive | None = Field(None, description="Thermal diffusivity [m²/s]")
+    surface_htc_W_m2K: Positive | None = Field(
+        None, description="Surface heat transfer coefficient (finite-difference model) [W/(m²·K)]")
+    thermal_conductivity_W_mK: Positive | None = Field(
+        None, description="Product thermal conductivity, with surface_htc_W_m2K [W/(m·K)]")
 
     @model_validator(mode="after")
     def _parameters(self) -> HeatPenetration:
-        if self.model == "conduction":
+        if self.model in ("conduction", "finite-difference"):
             if self.fh_min is None and self.thermal_diffusivity_m2_s is None:
-                raise ValueError("model 'conduction' needs fh_min or thermal_diffusivity_m2_s")
+                raise ValueError(f"model '{self.model}' needs fh_min or thermal_diffusivity_m2_s")
             if self.fh_min is not None and self.thermal_diffusivity_m2_s is not None:
-                raise ValueError("model 'conduction' takes fh_min or thermal_diffusivity_m2_s, not both")
+                raise ValueError(f"model '{self.model}' takes fh_min or thermal_diffusivity_m2_s, not both")
+        htc, k = self.surface_htc_W_m2K, self.thermal_conductivity_W_mK
+        if (htc is None) != (k is None):
+            raise ValueError("surface_htc_W_m2K and thermal_conductivity_W_mK go together; give both or neither")
+        if htc is not None and self.model != "finite-difference":
+            raise ValueError(f"surface_htc_W_m2K needs model 'finite-difference' (model '{self.model}' "
+                             "holds the surface at the retort temperature)")
         elif self.model == "heating-curve":
             missing = [k for k in ("fh_min", "jh") if getattr(self, k) is None]
             if missing:

@@ -500,10 +500,11 @@ def replay(store, record_ids: Sequence[str] | None = None, *, jobs: int = 1,
     order = {rid: i for i, rid in enumerate(ids)}
     results: list[dict] = []
     rs = _rule_set(rule_paths)
+    import deviation.evaluate  # noqa: F401 - loaded once here, inherited by forked workers
     t0 = time.perf_counter()
     jobs = max(1, min(jobs, total)) if total else 1
     if jobs == 1:
-        for item in store.iter_replay_items(ids):
+        for item in store.iter_replay_items(None if record_ids is None else ids):
             results.append(replay_item(item, rs))
             if progress:
                 progress(len(results), total)
@@ -511,6 +512,9 @@ def replay(store, record_ids: Sequence[str] | None = None, *, jobs: int = 1,
         chunk = max(1, min(50, total // (jobs * 8) or 1))
         chunks = [ids[i:i + chunk] for i in range(0, total, chunk)]
         ctx = mp.get_context("fork") if "fork" in mp.get_all_start_methods() else mp.get_context("spawn")
+        # No database connection may cross a fork (SQLite's rule): close the pooled ones first;
+        # each worker opens its own store.
+        store.engine.dispose()
         with ctx.Pool(jobs, initializer=_init_worker, initargs=(store.url, list(rule_paths))) as pool:
             for part in pool.imap_unordered(_replay_chunk, chunks):
                 results.extend(part)
@@ -545,11 +549,22 @@ def _cmd_replay(args) -> int:
         from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
         total = store.count_records()
-        with Progress(TextColumn("replaying"), BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
-                      console=Console(stderr=True), transient=False) as bar:
-            task = bar.add_task("replay", total=total)
-            out = replay(store, ids, jobs=jobs, rule_paths=args.rules or [],
-                         progress=lambda done, n: bar.update(task, completed=done, total=n))
+        bar = Progress(TextColumn("replaying"), BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
+                       console=Console(stderr=True), transient=False)
+        task = bar.add_task("replay", total=total)
+
+        def tick(done: int, n: int) -> None:
+            # Started at the first result, after the worker processes were forked: no refresh
+            # thread exists while forking.
+            if not bar.live.is_started:
+                bar.start()
+            bar.update(task, completed=done, total=n)
+
+        try:
+            out = replay(store, ids, jobs=jobs, rule_paths=args.rules or [], progress=tick)
+        finally:
+            if bar.live.is_started:
+                bar.stop()
     else:
         out = replay(store, ids, jobs=jobs, rule_paths=args.rules or [])
     bad = out["changed"] + out["error"]

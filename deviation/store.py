@@ -20,8 +20,20 @@ event (a test greps this file to keep it so). Drafts (the TUI's unsaved entry) l
 mutable table and are not records.
 
 Concurrency: on SQLite every write runs in ``BEGIN IMMEDIATE`` (writers queue on the file lock,
-with a busy timeout); on PostgreSQL a write first takes ``SELECT ... FOR UPDATE`` on the single
-``store_info`` row, which serialises the chain heads; a unique-key conflict is retried.
+with a busy timeout); on PostgreSQL (READ COMMITTED) a write first takes a transaction-scoped
+advisory lock, so the chain heads it reads afterwards are current and no two writers link to the
+same head (a lock rather than ``SELECT ... FOR UPDATE`` so a writer's database role needs no
+UPDATE privilege). A lock wait is bounded (``lock_timeout``); a unique-key, serialisation or
+deadlock conflict is retried with a bounded backoff.
+
+Lost connections (PostgreSQL): a write whose connection fails before its COMMIT was sent is
+retried (nothing of it was stored) until the server answers again or the reconnect window
+(``DEVIATION_DB_RECONNECT_S``, 30 s) runs out. When the connection fails *during* COMMIT the
+outcome is unknown; every appended event therefore carries a client-made ``event_id`` (unique
+in the store; outside the hashes), and the retry first looks it up, so an append that did
+commit is recognised, returned and never written twice. When the window runs out the caller
+gets :class:`StoreUnavailable` saying whether anything may have been stored; a caller that
+retries later with the same ``event_id`` is recognised the same way.
 """
 
 from __future__ import annotations
@@ -32,6 +44,7 @@ import hashlib
 import json
 import os
 import time
+import uuid
 from contextlib import contextmanager
 from dataclasses import asdict, dataclass, field
 from datetime import date, datetime, timedelta, timezone
@@ -52,6 +65,28 @@ BUNDLE_VERSION = 1
 _BUSY_TIMEOUT_S = 30.0
 _WRITE_RETRIES = 6
 _SQLITE_MAGIC = b"SQLite format 3\x00"
+_RECONNECT_S = 30.0  # default window for reconnecting after a lost server (DEVIATION_DB_RECONNECT_S)
+_CONNECT_TIMEOUT_S = 10
+# Transaction-scoped advisory lock keys (PostgreSQL): schema changes, and every write.
+_PG_SCHEMA_LOCK = 5050505
+_PG_WRITE_LOCK = int.from_bytes(hashlib.sha256(b"deviation:chain-heads").digest()[:8], "big", signed=True)
+_EVENT_ID_MAX = 40
+
+
+class StoreUnavailable(StoreError):
+    """The database server could not be reached (or the connection was lost) for longer than the
+    reconnect window.
+
+    ``outcome_unknown`` is True when the connection was lost while the write was committing: it
+    may have been stored. Retrying with the same ``event_id`` (or record id) is then safe; the
+    store recognises an append that did commit.
+    """
+
+    def __init__(self, message: str, *, source: str | None = None, outcome_unknown: bool = False,
+                 event_id: str | None = None) -> None:
+        super().__init__(message, source=source)
+        self.outcome_unknown = outcome_unknown
+        self.event_id = event_id
 
 # ---------------------------------------------------------------------------------------------
 # Canonical JSON and hashes
@@ -103,6 +138,11 @@ def utc_now() -> str:
 def new_record_id() -> str:
     """``DR-`` and 12 base32 characters (60 random bits)."""
     return "DR-" + base64.b32encode(os.urandom(8)).decode("ascii")[:12]
+
+
+def new_event_id() -> str:
+    """A client-made idempotency key for one append (a random UUID, 32 hex digits)."""
+    return uuid.uuid4().hex
 
 
 # ---------------------------------------------------------------------------------------------
@@ -165,8 +205,15 @@ def _define_v2(md: sa.MetaData) -> dict[str, sa.Table]:
     return {"drafts": drafts}
 
 
+def _define_v3(events: sa.Table) -> None:
+    """Version 3 adds to ``events``: ``event_id``, the client-made idempotency key of an append."""
+    events.append_column(sa.Column("event_id", sa.String(_EVENT_ID_MAX), nullable=True))
+    sa.Index("uq_events_event_id", events.c.event_id, unique=True)
+
+
 metadata = sa.MetaData()
 _T = {**_define_v1(metadata), **_define_v2(metadata)}
+_define_v3(_T["events"])
 schema_version_t, store_info_t, records_t, events_t, drafts_t = (
     _T["schema_version"], _T["store_info"], _T["records"], _T["events"], _T["drafts"])
 
@@ -187,8 +234,17 @@ def _migrate_2(conn: sa.Connection) -> None:
     md.create_all(conn, tables=list(tables.values()))
 
 
+def _migrate_3(conn: sa.Connection) -> None:
+    """Idempotency keys: ``events.event_id`` (NULL for events written before; unique otherwise).
+
+    Plain SQL that SQLite and PostgreSQL read alike; not part of any hash.
+    """
+    conn.exec_driver_sql(f"ALTER TABLE events ADD COLUMN event_id VARCHAR({_EVENT_ID_MAX})")
+    conn.exec_driver_sql("CREATE UNIQUE INDEX uq_events_event_id ON events (event_id)")
+
+
 # Applied in order, each in its own transaction; index + 1 is the schema version it makes.
-MIGRATIONS: list[Callable[[sa.Connection], None]] = [_migrate_1, _migrate_2]
+MIGRATIONS: list[Callable[[sa.Connection], None]] = [_migrate_1, _migrate_2, _migrate_3]
 SCHEMA_VERSION = len(MIGRATIONS)
 
 
@@ -213,6 +269,7 @@ class Event:
     global_prev_hash: str | None = None
     global_hash: str | None = None
     origin: str | None = None
+    event_id: str | None = None  # the append's idempotency key (not hashed; None for imports)
 
     def to_dict(self, *, with_payload: bool = True) -> dict:
         d = asdict(self)
@@ -398,6 +455,9 @@ def _url_for(target: str | os.PathLike | None) -> tuple[str, Path | None]:
         return f"sqlite:///{path}", path
     text = os.fspath(target)
     if "://" in text:
+        scheme, rest = text.split("://", 1)
+        if scheme in ("postgresql", "postgres"):  # the driver this tool ships with: psycopg 3
+            return f"postgresql+psycopg://{rest}", None
         if text.startswith("sqlite:///") and len(text) > len("sqlite:///"):
             p = text[len("sqlite:///"):].split("?", 1)[0]
             return text, (Path(p) if p != ":memory:" else None)
@@ -423,25 +483,45 @@ def _precheck_file(path: Path, name: str) -> None:
                              source=name)
 
 
-def open_store(url_or_path: str | os.PathLike | None = None) -> "Store":
+def open_store(url_or_path: str | os.PathLike | None = None, *,
+               reconnect_s: float | None = None) -> "Store":
     """Open (creating or upgrading) a record store.
 
     ``None`` uses ``DEVIATION_DB``, else ``deviation.db`` in the user data directory; a plain
     path is an SQLite file; anything with ``://`` is a SQLAlchemy URL
-    (``postgresql+psycopg://user@host/db``).
+    (``postgresql+psycopg://user@host/db``; ``postgresql://`` means the same).
+    ``reconnect_s`` [s]: how long a write keeps retrying a lost server (default
+    ``DEVIATION_DB_RECONNECT_S`` or 30 s).
     """
     url, path = _url_for(url_or_path)
-    return Store(url, path=path)
+    return Store(url, path=path, reconnect_s=reconnect_s)
+
+
+def _reconnect_window_s(value: float | None) -> float:
+    if value is not None:
+        return max(0.0, float(value))
+    text = os.environ.get("DEVIATION_DB_RECONNECT_S")
+    if not text:
+        return _RECONNECT_S
+    try:
+        return max(0.0, float(text))
+    except ValueError:
+        raise StoreError(f"DEVIATION_DB_RECONNECT_S must be a number of seconds, found {text!r}") from None
 
 
 class Store:
     """A deviation record store (see the module docstring)."""
 
-    def __init__(self, url: str, *, path: Path | None = None) -> None:
+    def __init__(self, url: str, *, path: Path | None = None, reconnect_s: float | None = None) -> None:
         self.url = url
         self.path = path
+        self.reconnect_s = _reconnect_window_s(reconnect_s)
         try:
             self.engine = self._make_engine(url)
+        except ModuleNotFoundError as exc:
+            raise StoreError(f"cannot use database URL: its driver '{exc.name}' is not installed"
+                             + (" (pip install 'psycopg[binary]')" if "psycopg" in str(exc.name) else ""),
+                             source=url.split("@")[-1]) from None
         except (sa_exc.ArgumentError, sa_exc.NoSuchModuleError, ImportError) as exc:
             raise StoreError(f"cannot use database URL: {exc}", source=url.split("@")[-1]) from None
         self.name = str(path) if path is not None else self.engine.url.render_as_string(hide_password=True)
@@ -479,7 +559,17 @@ class Store:
                     conn.exec_driver_sql("BEGIN")
 
             return engine
-        return sa.create_engine(url, pool_pre_ping=True)
+        connect_args: dict[str, Any] = {}
+        if url.startswith("postgresql+psycopg"):
+            # Give up on an unreachable server in bounded time, and notice a dead peer (TCP
+            # keepalive) instead of waiting on it for ever. libpq parameters in the URL win.
+            connect_args = {"connect_timeout": _CONNECT_TIMEOUT_S, "keepalives": 1,
+                            "keepalives_idle": 30, "keepalives_interval": 10, "keepalives_count": 3,
+                            "application_name": APP_NAME}
+            query = sa.engine.make_url(url).query
+            connect_args = {k: v for k, v in connect_args.items() if k not in query}
+        # pre_ping: a pooled connection that died with a restarted server is replaced, not used.
+        return sa.create_engine(url, pool_pre_ping=True, connect_args=connect_args)
 
     def close(self) -> None:
         self.engine.dispose()
@@ -507,6 +597,26 @@ class Store:
         orig = getattr(exc, "orig", None)
         reason = str(orig if orig is not None else exc).strip().splitlines()[0] if str(exc) else type(exc).__name__
         low = reason.lower()
+        kind = _classify(exc)
+        if kind == "disconnect":
+            return StoreError(f"cannot reach the database server or lost the connection to it ({reason})",
+                              source=self.name)
+        state = _sqlstate(exc) or ""
+        if self.dialect == "postgresql":
+            if state == "55P03":
+                return StoreError(f"the store stayed locked by another writer for over "
+                                  f"{_BUSY_TIMEOUT_S:.0f} s ({reason}); try again", source=self.name)
+            if state == "3D000":
+                return StoreError(f"the database does not exist ({reason}); create it first "
+                                  "(createdb), the tool makes its tables itself", source=self.name)
+            if state.startswith("28"):
+                return StoreError(f"the database server refused the login ({reason})", source=self.name)
+            if state == "42501":
+                return StoreError(f"the database role lacks a privilege this action needs ({reason}); "
+                                  "see the README on grants", source=self.name)
+            if state in ("53100", "53200", "53300"):
+                return StoreError(f"the database server is out of resources ({reason}); try again "
+                                  "later", source=self.name)
         if "file is not a database" in low:
             return StoreError("is not a deviation record store (not an SQLite database, or its "
                               f"header is damaged): {reason}", source=self.name)
@@ -527,29 +637,68 @@ class Store:
                 yield conn
 
     @contextmanager
-    def _write(self) -> Iterator[sa.Connection]:
+    def _write(self, *, lock_heads: bool = True) -> Iterator[sa.Connection]:
         with self._guard(), self.engine.connect() as conn:
             conn.execution_options(deviation_write=True)
             with conn.begin():
                 if self.dialect == "postgresql":
-                    # One fixed row locked by every writer: chain heads read after it are current.
-                    conn.execute(sa.select(store_info_t.c.store_id).with_for_update())
+                    # A bounded wait for any lock, like SQLite's busy timeout.
+                    conn.exec_driver_sql(f"SET LOCAL lock_timeout = '{int(_BUSY_TIMEOUT_S * 1000)}ms'")
+                    if lock_heads:
+                        # Every writer takes the same lock: the chain heads read after it are
+                        # current until COMMIT. Transaction-scoped, so a lost client frees it.
+                        conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({_PG_WRITE_LOCK})")
                 yield conn
 
-    def _retrying(self, fn: Callable[[sa.Connection], Any]) -> Any:
-        """Run a write transaction, retried when a concurrent writer took the same key."""
-        for attempt in range(_WRITE_RETRIES):
+    def _retrying(self, fn: Callable[[sa.Connection], Any], *, idempotent: bool = False) -> Any:
+        """Run a write transaction ``fn(conn)``; retried when a concurrent writer took the same
+        key (a few times, with backoff) and when the server went away (within the reconnect
+        window).
+
+        A failure before COMMIT was sent leaves nothing stored, so any ``fn`` is retried; a
+        failure during COMMIT has an unknown outcome and is retried only when ``fn`` is
+        ``idempotent`` (it recognises its own committed write, e.g. by an ``event_id``).
+        """
+        conflicts = 0
+        lost = 0
+        deadline: float | None = None
+        while True:
+            phase = "begin"
             try:
                 with self._write() as conn:
-                    return fn(conn)
+                    phase = "write"
+                    result = fn(conn)
+                    phase = "commit"
+                return result
             except StoreError as exc:
                 cause = exc.__context__
-                if isinstance(cause, (sa_exc.IntegrityError, sa_exc.OperationalError)) and \
-                        _is_conflict(cause) and attempt < _WRITE_RETRIES - 1:
-                    time.sleep(0.01 * (2 ** attempt))
+                kind = _classify(cause) if isinstance(cause, Exception) else None
+                if kind == "conflict" and conflicts < _WRITE_RETRIES - 1:
+                    time.sleep(0.01 * (2 ** conflicts) * (0.5 + _jitter()))
+                    conflicts += 1
                     continue
-                raise
-        raise AssertionError("unreachable")  # pragma: no cover
+                if kind != "disconnect":
+                    raise
+                unknown = phase == "commit"
+                now = time.monotonic()
+                if deadline is None:
+                    deadline = now + self.reconnect_s
+                if (idempotent or not unknown) and now < deadline:
+                    # Bounded exponential backoff with jitter, never past the window.
+                    time.sleep(min(1.0, 0.05 * (2 ** lost), max(0.0, deadline - now)) * (0.5 + _jitter()))
+                    lost += 1
+                    continue
+                raise self._unavailable(exc, unknown=unknown, tries=lost + 1) from None
+
+    def _unavailable(self, exc: StoreError, *, unknown: bool, tries: int) -> StoreUnavailable:
+        reason = exc.message
+        if unknown:
+            tail = ("the connection was lost while the write was committing, so it may have been "
+                    "stored: check (deviation record show / list) before repeating it")
+        else:
+            tail = "nothing of this write was stored; repeat it when the server is back"
+        waited = f"tried {tries} time(s) over {self.reconnect_s:g} s" if tries > 1 else "not retried"
+        return StoreUnavailable(f"{reason}; {waited}; {tail}", source=self.name, outcome_unknown=unknown)
 
     # -- schema ------------------------------------------------------------------------------
 
@@ -592,9 +741,10 @@ class Store:
 
     def _upgrade(self) -> None:
         for version, migration in enumerate(MIGRATIONS, start=1):
-            with self._write() as conn:
+            with self._write(lock_heads=False) as conn:
                 if self.dialect == "postgresql":
-                    conn.exec_driver_sql("SELECT pg_advisory_xact_lock(5050505)")
+                    # Two tools creating one fresh schema at once: the second waits, then skips.
+                    conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({_PG_SCHEMA_LOCK})")
                 current = self._version_in(conn)
                 if current >= version:
                     continue
@@ -1055,6 +1205,45 @@ def _is_conflict(exc: Exception) -> bool:
     low = str(getattr(exc, "orig", exc)).lower()
     return ("unique" in low or "duplicate" in low or "serializ" in low or "deadlock" in low
             or "could not obtain lock" in low)
+
+
+def _sqlstate(exc: BaseException | None) -> str | None:
+    orig = getattr(exc, "orig", None)
+    return getattr(orig, "sqlstate", None) if orig is not None else None
+
+
+# SQLSTATEs of a server that went away or is not ready: admin/crash shutdown, cannot connect now
+# (starting up or shutting down), and the connection-exception class 08.
+_GONE_STATES = ("57P01", "57P02", "57P03")
+_CONFLICT_STATES = ("40001", "40P01", "23505")
+
+
+def _classify(exc: BaseException | None) -> str | None:
+    """``"disconnect"`` (the server is unreachable or the connection died), ``"conflict"``
+    (another writer got there first: worth retrying at once) or None."""
+    if not isinstance(exc, sa_exc.DBAPIError):
+        return None
+    orig = exc.orig
+    state = getattr(orig, "sqlstate", None)
+    module = type(orig).__module__ or ""
+    if module.startswith("psycopg"):
+        if exc.connection_invalidated or state in _GONE_STATES or (state or "").startswith("08"):
+            return "disconnect"
+        # psycopg's own errors without a server SQLSTATE: a refused or broken connection.
+        if state is None and isinstance(exc, sa_exc.OperationalError):
+            return "disconnect"
+        if state in _CONFLICT_STATES:
+            return "conflict"
+        return None
+    if exc.connection_invalidated:
+        return "disconnect"
+    if isinstance(exc, (sa_exc.IntegrityError, sa_exc.OperationalError)) and _is_conflict(exc):
+        return "conflict"
+    return None
+
+
+def _jitter() -> float:
+    return int.from_bytes(os.urandom(2), "big") / 65535.0
 
 
 def _event_from_row(row, payload: dict | None = None) -> Event:

@@ -29,11 +29,16 @@ import math
 from functools import lru_cache
 
 import numpy as np
-from scipy.special import erfc, j1, jn_zeros
+from scipy.optimize import brentq
+from scipy.special import erfc, j0, j1, jn_zeros
 
 from deviation.errors import ModelError
 
 __all__ = [
+    "first_eigenvalue_slab",
+    "first_eigenvalue_cylinder",
+    "decay_rate_cylinder_s",
+    "decay_rate_brick_s",
     "ModelInputError",
     "cylinder_centre_unaccomplished",
     "brick_centre_unaccomplished",
@@ -470,3 +475,53 @@ def theoretical_centre_jh_brick() -> float:
     .. [1] Carslaw & Jaeger, *Conduction of Heat in Solids*, 2nd ed., 1959.
     """
     return (4.0 / math.pi) ** 3
+
+
+# ---------------------------------------------------------------------------------------------
+# A finite surface heat transfer coefficient (Biot boundary): first eigenvalues and fh.
+
+
+def first_eigenvalue_slab(biot) -> float:
+    """First root λ1 of ``λ tan λ = Bi`` (slab, half-thickness L, Bi = h L / k) [-].
+
+    ``biot=None`` (or inf) is the surface held at the retort temperature: λ1 = π/2.
+    Carslaw & Jaeger, *Conduction of Heat in Solids*, §3.10 (section from memory).
+    """
+    if biot is None or math.isinf(biot):
+        return math.pi / 2.0
+    bi = _positive("biot", biot)
+    return float(brentq(lambda x: x * math.sin(x) - bi * math.cos(x), 1e-12, math.pi / 2.0, xtol=1e-15))
+
+
+def first_eigenvalue_cylinder(biot) -> float:
+    """First root λ1 of ``λ J1(λ) = Bi J0(λ)`` (infinite cylinder, Bi = h R / k) [-].
+
+    ``biot=None`` (or inf): the first zero of J0, 2.4048. Carslaw & Jaeger §7.6 (from memory).
+    """
+    if biot is None or math.isinf(biot):
+        return _BETA1
+    bi = _positive("biot", biot)
+    return float(brentq(lambda x: x * j1(x) - bi * j0(x), 1e-12, _BETA1, xtol=1e-15))
+
+
+def decay_rate_cylinder_s(diffusivity_m2_s, radius_m, height_m, h_over_k_per_m=None) -> float:
+    """First-mode decay rate at the centre of a finite cylinder [1/s]: α (λr²/R² + λz²/(H/2)²).
+
+    ``h_over_k_per_m`` is h/k of the surface [1/m]; ``None`` for the surface at the retort
+    temperature (then ``ln10 / rate`` is the fh of :func:`fh_from_diffusivity_cylinder`).
+    """
+    R, half = _positive("radius_m", radius_m), _positive("height_m", height_m) / 2.0
+    bi_r = None if h_over_k_per_m is None else h_over_k_per_m * R
+    bi_z = None if h_over_k_per_m is None else h_over_k_per_m * half
+    lr, lz = first_eigenvalue_cylinder(bi_r), first_eigenvalue_slab(bi_z)
+    return _positive("diffusivity_m2_s", diffusivity_m2_s) * (lr**2 / R**2 + lz**2 / half**2)
+
+
+def decay_rate_brick_s(diffusivity_m2_s, length_m, width_m, thickness_m, h_over_k_per_m=None) -> float:
+    """First-mode decay rate at the centre of a brick [1/s]: α Σ λi²/(Li/2)²."""
+    rate = 0.0
+    for name, full in (("length_m", length_m), ("width_m", width_m), ("thickness_m", thickness_m)):
+        half = _positive(name, full) / 2.0
+        lam = first_eigenvalue_slab(None if h_over_k_per_m is None else h_over_k_per_m * half)
+        rate += lam**2 / half**2
+    return _positive("diffusivity_m2_s", diffusivity_m2_s) * rate

@@ -1,0 +1,1 @@
+"""Widgets of the terminal UI, one module per screen region (results, guidance, plots, timeline)."""

@@ -1,0 +1,119 @@
+"""The figures of an evaluation at a glance: F0 so far, projected, extra minutes, risks."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from rich.console import Group
+from rich.table import Table
+from rich.text import Text
+from textual.message import Message
+from textual.widgets import Static
+
+from deviation.evaluate import Evaluation
+from deviation.render import DISPOSITION_LOOK, fmt_probability
+
+
+def disposition_look(disposition: str | None) -> tuple[str, str, str]:
+    """Word, symbol and style of a disposition (colour never the only signal)."""
+    if not disposition:
+        return ("NOT EVALUATED", "·", "dim")
+    return DISPOSITION_LOOK.get(disposition, (disposition.upper(), "?", "bold"))
+
+
+def disposition_text(disposition: str | None) -> Text:
+    word, symbol, style = disposition_look(disposition)
+    return Text(f"{symbol} {word}", style=style)
+
+
+@dataclass(frozen=True)
+class FloorFigures:
+    """What the results panel shows for one evaluation of the floor entry."""
+
+    evaluation: Evaluation
+    so_far_F_min: float | None  # delivered up to now [min]
+    so_far_at_min: float | None  # "now" [min from steam on]; None: the whole record
+    from_log: bool  # the retort record is an imported log (else the filed cycle + entries)
+    low_running: bool  # a temperature-low interval is still open
+
+
+class ResultsPanel(Static):
+    """Figures of the latest evaluation; ``generation`` counts the refreshes (for tests)."""
+
+    class Refreshed(Message):
+        """Posted after the panel shows a new evaluation."""
+
+        def __init__(self, generation: int) -> None:
+            self.generation = generation
+            super().__init__()
+
+    DEFAULT_CSS = """
+    ResultsPanel { height: auto; padding: 0 1; }
+    """
+
+    def __init__(self, **kw) -> None:
+        super().__init__("", **kw)
+        self.generation = 0
+        self.figures: FloorFigures | None = None
+        self.border_title = "Results"
+        self.show_message("Choose a filed process and enter the lot to see results.")
+
+    def show_message(self, text: str, style: str = "dim") -> None:
+        self.update(Text(text, style=style))
+
+    def show_error(self, lines: list[str]) -> None:
+        body = [Text("✗ NOT EVALUATED: the entry is incomplete or out of range", style="bold red")]
+        body += [Text(f"  {line}") for line in lines[:6]]
+        self.update(Group(*body))
+
+    def show(self, figures: FloorFigures) -> None:
+        self.figures = figures
+        ev = figures.evaluation
+        g = ev.guidance or {}
+        t = Table.grid(padding=(0, 1))
+        t.add_column(justify="left", no_wrap=True)
+        t.add_column(justify="right", no_wrap=True)
+        t.add_column(justify="left")
+        target = ev.target_F_min
+        if figures.so_far_F_min is not None:
+            at = f"to min {figures.so_far_at_min:.1f}" if figures.so_far_at_min is not None else "whole record"
+            t.add_row("F0 delivered so far", f"{figures.so_far_F_min:.2f} min", at)
+        else:
+            t.add_row("F0 delivered so far", "—", "set the cycle start")
+        proj = ev.projected_F_min if ev.projected_F_min is not None else ev.delivered_F_min
+        ok = proj >= target
+        t.add_row("F0 projected", f"{proj:.2f} min",
+                  Text(("✓ meets" if ok else "✗ below") + f" target {target:g}",
+                       style="green" if ok else "bold red"))
+        ext = ev.extension_to_target_min
+        if ext is None:
+            t.add_row("extra minutes", "n/a", ev.extension_reason or "")
+        elif ext == 0.0:
+            t.add_row("extra minutes", "0.0 min", "none needed")
+        else:
+            t.add_row("extra minutes", Text(f"+{ext:.1f} min", style="bold"), "at process temp.")
+        t.add_row("spoilage / container", fmt_probability(ev.spoilage_probability).split(" (")[0],
+                  f"target {fmt_probability(ev.target_spoilage_probability).split(' (')[0]}")
+        bot_ok = ev.botulinum_log_reductions >= ev.botulinum_log_reductions_required
+        t.add_row("botulinum log red.", f"{ev.botulinum_log_reductions:.1f}",
+                  Text(("✓ meets" if bot_ok else "✗ below") + f" {ev.botulinum_log_reductions_required:g}D",
+                       style="green" if bot_ok else "bold red"))
+        basis = "imported retort log" if figures.from_log else "filed cycle + entries"
+        if figures.low_running:
+            basis += "; ▼ still low (counted until now)"
+        head = disposition_text(g.get("disposition"))
+        self.update(Group(head, t, Text(basis, style="dim")))
+        self.generation += 1
+        self.post_message(self.Refreshed(self.generation))
+
+    @property
+    def text(self) -> str:
+        """The panel as plain text (for tests)."""
+        return str(self.render_str()) if False else self._plain()
+
+    def _plain(self) -> str:
+        from rich.console import Console
+
+        console = Console(width=max(self.size.width, 60), record=True, color_system=None)
+        console.print(self.visual if hasattr(self, "visual") else self.render())
+        return console.export_text()
