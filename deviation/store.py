@@ -781,11 +781,17 @@ class Store:
                            .order_by(events_t.c.global_seq.desc()).limit(1)).first()
         return (row.global_seq, row.global_hash) if row else (0, GENESIS_HASH)
 
+    @staticmethod
+    def _event_by_id(conn: sa.Connection, event_id: str):
+        return conn.execute(sa.select(events_t).where(events_t.c.event_id == event_id)).mappings().first()
+
     def _insert_event(self, conn: sa.Connection, *, record_id: str, kind: str, utc: str, actor: str,
                       role: str, payload_json: str, origin: str | None = None,
-                      given: tuple[int, str, str] | None = None) -> dict:
+                      given: tuple[int, str, str] | None = None, event_id: str | None = None) -> dict:
         """Insert one event at the heads of both chains (``given``: seq, prev_hash, hash of an
         imported event, which keeps its own chain)."""
+        _check_columns(events_t, {"actor": actor, "role": role, "kind": kind, "utc": utc},
+                       source=self.name)
         if given is None:
             last_seq, prev = self._record_head(conn, record_id)
             seq = last_seq + 1
@@ -797,43 +803,86 @@ class Store:
         gh = global_hash(gseq, record_id, seq, h, origin, gprev)
         row = dict(global_seq=gseq, record_id=record_id, seq=seq, kind=kind, utc=utc, actor=actor,
                    role=role, payload=payload_json, prev_hash=prev, hash=h, origin=origin,
-                   global_prev_hash=gprev, global_hash=gh)
+                   global_prev_hash=gprev, global_hash=gh, event_id=event_id)
         # Append-only: events are INSERTed, never changed or removed.
         conn.execute(events_t.insert().values(**row))
         return row
 
     def create_record(self, snapshot: dict, *, actor: str, role: str, lot: str, retort_id: str,
-                      process_id: str, process_version: str | None = None) -> str:
-        """Create a record with its ``entered`` event (the full case snapshot); returns its id."""
+                      process_id: str, process_version: str | None = None,
+                      event_id: str | None = None) -> str:
+        """Create a record with its ``entered`` event (the full case snapshot); returns its id.
+
+        ``event_id``: the idempotency key of the ``entered`` event (made here when not given).
+        Called again with the same key after an unknown outcome, it returns the record that was
+        created instead of creating a second one.
+        """
         role = roles.check_role(actor, role, "enter")
         for name, value in (("lot", lot), ("retort_id", retort_id), ("process_id", process_id)):
             if not isinstance(value, str) or not value.strip():
                 raise StoreError(f"a record needs a non-empty {name}")
         if not isinstance(snapshot, dict):
             raise StoreError("the case snapshot must be a JSON object")
+        _check_columns(records_t, {"lot": lot, "retort_id": retort_id, "process_id": process_id,
+                                   "process_version": process_version}, source=self.name)
+        check_first = event_id is not None
+        eid = _checked_event_id(event_id)
+        # Made once, outside the transaction: a retry writes the same record, not a new one.
+        created = {"id": new_record_id()}
 
         def write(conn: sa.Connection) -> str:
-            rid, created = new_record_id(), utc_now()
+            nonlocal check_first
+            if check_first:
+                done = self._event_by_id(conn, eid)
+                if done is not None:
+                    if done["kind"] != "entered":
+                        raise StoreError(f"event id {eid} is already used by event {done['seq']} "
+                                         f"({done['kind']}) of record {done['record_id']}", source=self.name)
+                    return done["record_id"]
+            check_first = True
+            rid = created["id"]
+            if conn.execute(sa.select(records_t.c.id).where(records_t.c.id == rid)).first() is not None:
+                rid = created["id"] = new_record_id()  # 60 random bits collided: draw again
+            when = utc_now()
             header = {"id": rid, "lot": lot, "retort_id": retort_id, "process_id": process_id,
-                      "process_version": process_version, "created_utc": created}
+                      "process_version": process_version, "created_utc": when}
             payload_json = canonical_json({"record": header, "snapshot": snapshot})
             conn.execute(records_t.insert().values(**header))
-            self._insert_event(conn, record_id=rid, kind="entered", utc=created, actor=actor,
-                               role=role, payload_json=payload_json)
+            self._insert_event(conn, record_id=rid, kind="entered", utc=when, actor=actor,
+                               role=role, payload_json=payload_json, event_id=eid)
             return rid
 
-        return self._retrying(write)
+        return self._retrying(write, idempotent=True)
 
-    def append_event(self, record_id: str, kind: str, payload: dict, *, actor: str, role: str) -> Event:
-        """Append one event, after the role and record-state rules of :mod:`deviation.roles`."""
+    def append_event(self, record_id: str, kind: str, payload: dict, *, actor: str, role: str,
+                     event_id: str | None = None) -> Event:
+        """Append one event, after the role and record-state rules of :mod:`deviation.roles`.
+
+        ``event_id``: the append's idempotency key (made here when not given). If an event with
+        this key is already stored (a retry of an append that did commit), that event is
+        returned and nothing is written.
+        """
         if kind == "entered":
             raise StoreError("an 'entered' event starts a record: use create_record")
         check_payload(kind, payload)
         action = roles.KIND_ACTION[kind]
         role = roles.check_role(actor, role, action)
         payload = dict(payload)
+        check_first = event_id is not None
+        eid = _checked_event_id(event_id)
 
         def write(conn: sa.Connection) -> Event:
+            nonlocal check_first
+            if check_first:
+                # Before the state rules: a committed "decide" must be recognised, not refused
+                # because the record is decided now.
+                done = self._event_by_id(conn, eid)
+                if done is not None:
+                    if (done["record_id"], done["kind"]) != (record_id, kind):
+                        raise StoreError(f"event id {eid} is already used by event {done['seq']} "
+                                         f"({done['kind']}) of record {done['record_id']}", source=self.name)
+                    return _event_from_row(done)
+            check_first = True  # any retry looks first
             rows = conn.execute(sa.select(events_t.c.seq, events_t.c.kind)
                                 .where(events_t.c.record_id == record_id)
                                 .order_by(events_t.c.seq)).all()
@@ -852,19 +901,22 @@ class Store:
                         f"evaluation is of snapshot event {asked} but the record was amended since "
                         f"(current snapshot event {latest}); evaluate again")
             row = self._insert_event(conn, record_id=record_id, kind=kind, utc=utc_now(),
-                                     actor=actor, role=role, payload_json=canonical_json(payload))
+                                     actor=actor, role=role, payload_json=canonical_json(payload),
+                                     event_id=eid)
             return _event_from_row(row, payload)
 
-        return self._retrying(write)
+        return self._retrying(write, idempotent=True)
 
     # Convenience writers (the CLI and TUI use these).
 
-    def amend(self, record_id: str, snapshot: dict, *, reason: str, actor: str, role: str) -> Event:
+    def amend(self, record_id: str, snapshot: dict, *, reason: str, actor: str, role: str,
+              event_id: str | None = None) -> Event:
         return self.append_event(record_id, "amended", {"snapshot": snapshot, "reason": reason},
-                                 actor=actor, role=role)
+                                 actor=actor, role=role, event_id=event_id)
 
     def add_evaluation(self, record_id: str, evaluation: dict, *, actor: str, role: str,
-                       snapshot_seq: int | None = None, options: dict | None = None) -> Event:
+                       snapshot_seq: int | None = None, options: dict | None = None,
+                       event_id: str | None = None) -> Event:
         """Append ``evaluated`` with the engine version and rule-set hash read from the evaluation."""
         guidance = evaluation.get("guidance") or {}
         payload = {"engine_version": evaluation.get("engine_version"),
@@ -873,23 +925,30 @@ class Store:
                    "evaluation": evaluation}
         if snapshot_seq is not None:
             payload["snapshot_seq"] = snapshot_seq
-        return self.append_event(record_id, "evaluated", payload, actor=actor, role=role)
+        return self.append_event(record_id, "evaluated", payload, actor=actor, role=role, event_id=event_id)
 
-    def place_hold(self, record_id: str, *, reason: str, actor: str, role: str) -> Event:
-        return self.append_event(record_id, "hold-placed", {"reason": reason}, actor=actor, role=role)
+    def place_hold(self, record_id: str, *, reason: str, actor: str, role: str,
+                   event_id: str | None = None) -> Event:
+        return self.append_event(record_id, "hold-placed", {"reason": reason}, actor=actor, role=role,
+                                 event_id=event_id)
 
-    def release_hold(self, record_id: str, *, reason: str, actor: str, role: str) -> Event:
-        return self.append_event(record_id, "hold-released", {"reason": reason}, actor=actor, role=role)
+    def release_hold(self, record_id: str, *, reason: str, actor: str, role: str,
+                     event_id: str | None = None) -> Event:
+        return self.append_event(record_id, "hold-released", {"reason": reason}, actor=actor, role=role,
+                                 event_id=event_id)
 
     def decide(self, record_id: str, *, decision: str, reason: str, actor: str, role: str,
-               result: str | None = None) -> Event:
+               result: str | None = None, event_id: str | None = None) -> Event:
         payload = {"decision": decision, "reason": reason}
         if result:
             payload["result"] = result
-        return self.append_event(record_id, "disposition", payload, actor=actor, role=role)
+        return self.append_event(record_id, "disposition", payload, actor=actor, role=role,
+                                 event_id=event_id)
 
-    def note(self, record_id: str, text: str, *, actor: str, role: str) -> Event:
-        return self.append_event(record_id, "note", {"text": text}, actor=actor, role=role)
+    def note(self, record_id: str, text: str, *, actor: str, role: str,
+             event_id: str | None = None) -> Event:
+        return self.append_event(record_id, "note", {"text": text}, actor=actor, role=role,
+                                 event_id=event_id)
 
     # -- reading -----------------------------------------------------------------------------
 
@@ -902,10 +961,15 @@ class Store:
             raise StoreError(f"no record {record_id}", source=self.name)
         return [_event_from_row(r) for r in rows]
 
+    def _bytewise(self, col: sa.ColumnElement) -> sa.ColumnElement:
+        """A text column compared code point by code point on every backend (SQLite's own rule;
+        a PostgreSQL database's default collation may follow a language's rules)."""
+        return col.collate("C") if self.dialect == "postgresql" else col
+
     def record_ids(self) -> list[str]:
         with self._read() as conn:
-            return list(conn.execute(sa.select(records_t.c.id).order_by(records_t.c.created_utc,
-                                                                        records_t.c.id)).scalars())
+            return list(conn.execute(sa.select(records_t.c.id).order_by(
+                self._bytewise(records_t.c.created_utc), self._bytewise(records_t.c.id))).scalars())
 
     def record(self, record_id: str) -> RecordView:
         """The record as it stands now (state, latest snapshot and evaluation, hold, disposition)."""
@@ -961,10 +1025,10 @@ class Store:
         if retort is not None:
             q = q.where(records_t.c.retort_id == retort)
         if since is not None:
-            q = q.where(records_t.c.created_utc >= _bound(since, "since"))
+            q = q.where(self._bytewise(records_t.c.created_utc) >= _bound(since, "since"))
         if until is not None:
-            q = q.where(records_t.c.created_utc < _bound(until, "until"))
-        q = q.order_by(records_t.c.created_utc, records_t.c.id)
+            q = q.where(self._bytewise(records_t.c.created_utc) < _bound(until, "until"))
+        q = q.order_by(self._bytewise(records_t.c.created_utc), self._bytewise(records_t.c.id))
         with self._read() as conn:
             heads = conn.execute(q).mappings().all()
             kinds: dict[str, list[str]] = {h["id"]: [] for h in heads}
@@ -1134,6 +1198,7 @@ class Store:
                                     .where(events_t.c.record_id == rid)
                                     .order_by(events_t.c.seq)).all()
                 if head is None:
+                    _check_columns(records_t, rec, source=self.name)
                     conn.execute(records_t.insert().values(**rec))
                     added += 1
                 else:
@@ -1180,7 +1245,7 @@ class Store:
 
     def draft_keys(self) -> list[str]:
         with self._read() as conn:
-            return list(conn.execute(sa.select(drafts_t.c.key).order_by(drafts_t.c.key)).scalars())
+            return list(conn.execute(sa.select(drafts_t.c.key).order_by(self._bytewise(drafts_t.c.key))).scalars())
 
     # -- process library (not in this schema yet) -------------------------------------------
 
@@ -1253,10 +1318,33 @@ def _event_from_row(row, payload: dict | None = None) -> Event:
                  payload=payload if payload is not None else json.loads(get("payload")),
                  prev_hash=get("prev_hash"), hash=get("hash"), global_seq=get("global_seq"),
                  global_prev_hash=get("global_prev_hash"), global_hash=get("global_hash"),
-                 origin=get("origin"))
+                 origin=get("origin"), event_id=get("event_id"))
 
 
 _HEADER_KEYS = ("id", "lot", "retort_id", "process_id", "process_version", "created_utc")
+
+
+def _checked_event_id(event_id: str | None) -> str:
+    if event_id is None:
+        return new_event_id()
+    if not isinstance(event_id, str) or not event_id.strip() or len(event_id) > _EVENT_ID_MAX:
+        raise StoreError(f"an event id must be a non-empty text of at most {_EVENT_ID_MAX} characters, "
+                         f"found {event_id!r}")
+    return event_id
+
+
+def _check_columns(table: sa.Table, values: dict, *, source: str | None = None) -> None:
+    """The same refusal on every backend for text a column cannot hold (SQLite would store any
+    length; PostgreSQL refuses it, and NUL characters, with a database error)."""
+    for key, value in values.items():
+        if not isinstance(value, str):
+            continue
+        length = getattr(table.c[key].type, "length", None)
+        if length is not None and len(value) > length:
+            raise StoreError(f"{key} is {len(value)} characters long; the store keeps at most {length}",
+                             source=source)
+        if "\x00" in value:
+            raise StoreError(f"{key} contains a NUL character", source=source)
 
 
 def _header_mismatch(head, payload_json: str) -> str | None:
@@ -1385,4 +1473,4 @@ def write_bundle(bundle: dict, path: str | os.PathLike) -> None:
 __all__ = ["open_store", "Store", "Event", "RecordView", "RecordSummary", "VerifyResult", "ImportResult",
            "canonical_json", "event_hash", "global_hash", "check_bundle", "check_payload", "read_bundle",
            "write_bundle", "default_db_path", "SCHEMA_VERSION", "MIGRATIONS", "GENESIS_HASH", "utc_now",
-           "new_record_id", "describe_event", "event_summary"]
+           "new_record_id", "new_event_id", "describe_event", "event_summary", "StoreUnavailable"]

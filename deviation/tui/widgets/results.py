@@ -106,14 +106,27 @@ class ResultsPanel(Static):
         self.generation += 1
         self.post_message(self.Refreshed(self.generation))
 
-    @property
-    def text(self) -> str:
-        """The panel as plain text (for tests)."""
-        return str(self.render_str()) if False else self._plain()
+    def update(self, content="", **kw) -> None:  # noqa: D401 - keeps what is shown, for plain_text
+        self._shown = content
+        super().update(content, **kw)
 
-    def _plain(self) -> str:
-        from rich.console import Console
+    def plain_text(self, width: int = 80) -> str:
+        """What the panel shows, as plain text (tests and the benchmark read it)."""
+        return plain(getattr(self, "_shown", ""), width)
 
-        console = Console(width=max(self.size.width, 60), record=True, color_system=None)
-        console.print(self.visual if hasattr(self, "visual") else self.render())
-        return console.export_text()
+
+def plain(renderable, width: int = 80) -> str:
+    """A Rich renderable as plain text."""
+    from rich.console import Console
+
+    console = Console(width=width, record=True, color_system=None, file=_Null())
+    console.print(renderable)
+    return console.export_text()
+
+
+class _Null:
+    def write(self, _text: str) -> int:
+        return 0
+
+    def flush(self) -> None:
+        pass

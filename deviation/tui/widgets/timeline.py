@@ -1,0 +1,40 @@
+"""The event timeline of a record: append-only, each event chained to the one before."""
+
+from __future__ import annotations
+
+from rich.text import Text
+from textual.widgets import DataTable
+
+from deviation.store import Event, describe_event
+
+# Each kind has its own symbol (colour is never the only signal).
+KIND_LOOK = {
+    "entered": ("＋", "bold"),
+    "amended": ("✎", "yellow"),
+    "evaluated": ("∑", "cyan"),
+    "hold-placed": ("⏸", "bold yellow"),
+    "hold-released": ("▶", "green"),
+    "disposition": ("⚖", "bold magenta"),
+    "note": ("✉", "dim"),
+}
+
+
+class Timeline(DataTable):
+    """One row per event: seq, UTC, kind, who, what, hash."""
+
+    DEFAULT_CSS = """
+    Timeline { height: 1fr; }
+    """
+
+    def on_mount(self) -> None:
+        self.cursor_type = "row"
+        self.zebra_stripes = True
+        self.add_columns("#", "UTC", "event", "who", "what", "hash")
+
+    def show(self, events: list[Event]) -> None:
+        self.clear()
+        for e in events:
+            symbol, style = KIND_LOOK.get(e.kind, ("·", ""))
+            self.add_row(str(e.seq), e.utc[:19].replace("T", " "), Text(f"{symbol} {e.kind}", style=style),
+                         f"{e.actor} ({e.role})", describe_event(e)[:70], e.hash[:10] + "…",
+                         key=str(e.seq))
