@@ -335,8 +335,7 @@ def add_process(store, process: dict | str | os.PathLike, *, actor: str, role: s
         if reason is None:
             raise CaseError(
                 f"{warning}; a process authority may still file it, with a reason (--reason TEXT) "
-                "saying why it stands (e.g. the heat penetration tests it rests on)",
-                source=source or f"process {pid}")
+                "saying why it stands (e.g. the heat penetration tests it rests on)", source=source)
     text = canonical_json(table)
     digest = _sha(text)
     ensure_library(store)
