@@ -33,6 +33,8 @@ def register(subparsers) -> None:
                    help="a plant rule file or folder laid over the default rules (repeatable)")
     p.add_argument("--conservative", action="store_true",
                    help="read between readings at the lower one; never credit more than the lower lethal rate")
+    p.add_argument("--uncertainty", action="store_true",
+                   help="run the Monte Carlo uncertainty estimate (default: when the case asks for it)")
     p.set_defaults(handler=run_report)
 
 
@@ -80,8 +82,23 @@ def _from_record(args, rule_set):
         close = getattr(store, "close", None)
         if close is not None:
             close()
-    ev = evaluate_case(loaded, conservative=args.conservative, rule_set=rule_set)
+    # The report shows the evaluation the record holds (what was signed off), when it is of the
+    # latest snapshot and no other options were asked for; otherwise it evaluates again.
+    options = _evaluate_options(args)
+    if view.evaluation is not None and view.evaluation_current and options == {"conservative": False}:
+        from deviation.evaluate import Evaluation
+
+        ev = Evaluation.model_validate(view.evaluation)
+    else:
+        ev = evaluate_case(loaded, **options, rule_set=rule_set)
     return loaded, ev, events, view.id, record_hash
+
+
+def _evaluate_options(args) -> dict:
+    options = {"conservative": args.conservative}
+    if getattr(args, "uncertainty", False):
+        options["uncertainty"] = True
+    return options
 
 
 def run_report(args) -> int:
@@ -100,7 +117,7 @@ def run_report(args) -> int:
         if args.db:
             resolver = _open_store(args.db).resolve_process_ref
         loaded = load_case(args.target, process_resolver=resolver)
-        ev = evaluate_case(loaded, conservative=args.conservative, rule_set=rule_set)
+        ev = evaluate_case(loaded, **_evaluate_options(args), rule_set=rule_set)
         events = record_id = record_hash = None
     else:
         if args.target.lower().endswith(".toml"):

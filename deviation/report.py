@@ -250,7 +250,10 @@ def _inputs(loaded, ev) -> dict[str, Any]:
                      _row("Inside thickness", _g(box.thickness_mm, "mm"))]
     heat = [_row("Model", hp.model)]
     for name, value, unit in (("fh", hp.fh_min, "min"), ("jh", hp.jh, ""), ("fc", hp.fc_min, "min"),
-                              ("jc", hp.jc, ""), ("Thermal diffusivity", hp.thermal_diffusivity_m2_s, "m²/s")):
+                              ("jc", hp.jc, ""), ("Thermal diffusivity", hp.thermal_diffusivity_m2_s, "m²/s"),
+                              ("Surface heat transfer coefficient", getattr(hp, "surface_htc_W_m2K", None),
+                               "W/(m²·K)"),
+                              ("Thermal conductivity", getattr(hp, "thermal_conductivity_W_mK", None), "W/(m·K)")):
         if value is not None:
             heat.append(_row(name, f"{value:.4g} {unit}".rstrip()))
     micro = [
@@ -321,6 +324,20 @@ def _method(loaded, ev) -> dict[str, Any]:
     if ev.model == "measured":
         model = ("Measured cold-spot temperatures (thermocouple in a container of the lot) integrated "
                  "directly; the retort record is shown for comparison only. No heat-transfer model is used.")
+    elif hp.model == "finite-difference":
+        biot = getattr(hp, "surface_htc_W_m2K", None)
+        model = ("Conduction heating of the container solved by finite differences on a grid of nodes "
+                 "(Teixeira et al. 1969), "
+                 + ("with a finite surface heat transfer coefficient (Biot boundary)"
+                    if biot else "with the surface at the retort temperature")
+                 + "; the thermal diffusivity follows from fh through the first eigenvalue of the same "
+                   "boundary problem (Carslaw & Jaeger; Olson & Jackson 1942).")
+        if hp.fh_min:
+            params.append(f"fh = {hp.fh_min:.4g} min")
+        if hp.thermal_diffusivity_m2_s:
+            params.append(f"thermal diffusivity α = {hp.thermal_diffusivity_m2_s:.4g} m²/s")
+        if biot:
+            params.append(f"surface h = {biot:.4g} W/(m²·K), product k = {hp.thermal_conductivity_W_mK:.4g} W/(m·K)")
     elif hp.model == "conduction":
         from deviation.heating import conduction  # parameter display only: the same functions evaluate uses
 
@@ -355,7 +372,7 @@ def _method(loaded, ev) -> dict[str, Any]:
             params.append(f"fc = {hp.fc_min:.4g} min, jc = {(hp.jc or 1.0):.4g}"
                           + ("" if hp.jc else " (jc default 1: least cooling lethality credited)"))
     superposition = None
-    if ev.model != "measured":
+    if ev.model not in ("measured", "finite-difference"):
         superposition = ("Any retort history: the retort record is read as piecewise linear between readings and "
                          "the step responses are superposed by Duhamel's theorem (Carslaw & Jaeger), exact for "
                          "linear conduction, on a uniform grid"
@@ -444,10 +461,33 @@ def _results(ev) -> dict[str, Any]:
         "meets_target": margin >= 0,
         "projected_F": (_num(ev.projected_F_min, 2) if ev.cycle.running and ev.projected_F_min is not None
                         else None),
-        "uncertainty": ("No uncertainty band is computed by this engine version. The conservative reading "
-                        "(bottom of the trace, lower lethal rate per interval) bounds the record-reading "
-                        "error from below; run the report with --conservative to show it."),
+        "uncertainty": _uncertainty(ev),
     }
+
+
+def _uncertainty(ev) -> dict[str, Any]:
+    """The Monte Carlo figures of the evaluation, when it ran one."""
+    mc = getattr(ev, "uncertainty", None)
+    if not mc or "F_p50_min" not in mc:
+        return {"computed": False, "rows": [],
+                "statement": ("No uncertainty estimate was run for this evaluation (the case has no "
+                              "[deviation.uncertainty] table, or --uncertainty was not given). The conservative "
+                              "reading (bottom of the trace, lower lethal rate per interval) bounds the "
+                              "record-reading error from below; run the report with --conservative to show it.")}
+    spreads = mc.get("spreads") or {}
+    spread_text = ", ".join(f"{k} {v:g}" for k, v in sorted(spreads.items()) if isinstance(v, (int, float)))
+    rows = [
+        _row("F0, 5th / 50th / 95th percentile",
+             f"{_num(mc['F_p05_min'])} / {_num(mc['F_p50_min'])} / {_num(mc['F_p95_min'])} min", ""),
+        _row("Probability that F0 is below the filed target", f"{mc['probability_F_below_target']:.3f}", ""),
+        _row("Spoilage probability per container, 95th percentile", _probability(mc["spoilage_probability_p95"]), ""),
+        _row("C. botulinum log reductions, 5th percentile", _num(mc["botulinum_log_reductions_p05"], 1),
+             f"required {_g(ev.botulinum_log_reductions_required)}"),
+    ]
+    statement = (f"Monte Carlo estimate: {mc.get('samples')} samples, seed {mc.get('seed')}; spreads: "
+                 f"{spread_text or 'defaults'}." + (f" {mc['reason'][0].upper()}{mc['reason'][1:]}."
+                                                     if mc.get("reason") else ""))
+    return {"computed": True, "rows": rows, "statement": statement}
 
 
 def _history_table(ev) -> list[dict[str, str]]:
@@ -539,8 +579,9 @@ def _timeline(events, record_id, record_hash) -> dict[str, Any]:
     signoffs = [r for r in rows if r["kind"] in ("disposition", "hold-placed", "hold-released", "evaluated")]
     return {"stored": True, "record_id": record_id, "record_hash": record_hash,
             "statement": f"{len(rows)} event(s) on record; each hash covers the event and the one before it. "
-                         "The figures in this report were computed again from the record's latest case "
-                         "snapshot; the evaluated events show what was computed and signed at the time.",
+                         "The figures in this report are the record's latest stored evaluation when it is "
+                         "of the latest case snapshot (otherwise they were computed again from that "
+                         "snapshot); the evaluated events show what was computed at each time.",
             "events": rows, "signoffs": signoffs}
 
 

@@ -346,3 +346,29 @@ def test_pdf_without_weasyprint_names_the_packages(monkeypatch, reports):
     monkeypatch.setitem(sys.modules, "weasyprint", None)  # import now raises ImportError
     with pytest.raises(DeviationError, match="apt-get install .*libpango"):
         report.render_pdf(reports["chili_no_deviation"]["ctx"])
+
+
+def test_report_shows_the_monte_carlo_figures(rule_set):
+    loaded = load_case(ROOT / "demo_cases" / "peas_steam_loss.toml")
+    ev = evaluate_case(loaded, rule_set=rule_set, uncertainty=True)
+    mc = ev.uncertainty
+    md = report.render_markdown(report.build_report_context(loaded, ev, rule_set=rule_set, with_plots=False))
+    assert "### Uncertainty" in md
+    assert f"{mc['F_p05_min']:.2f} / {mc['F_p50_min']:.2f} / {mc['F_p95_min']:.2f} min" in md
+    assert f"{mc['samples']} samples, seed {mc['seed']}" in md
+
+
+def test_report_for_the_finite_difference_model(tmp_path, rule_set):
+    text = (ROOT / "demo_cases" / "chili_temperature_drop.toml").read_text(encoding="utf-8")
+    text = text.replace('model = "conduction"', 'model = "finite-difference"\nsurface_htc_W_m2K = 500\n'
+                        'thermal_conductivity_W_mK = 0.5')
+    log = (ROOT / "demo_cases" / "logs" / "R3-2026-1104-A.csv").as_posix()
+    text = text.replace('retort_log = "logs/R3-2026-1104-A.csv"', f'retort_log = "{log}"')
+    case = tmp_path / "fd.toml"
+    case.write_text(text, encoding="utf-8")
+    loaded = load_case(case)
+    ev = evaluate_case(loaded, rule_set=rule_set, what_if=False)
+    md = report.render_markdown(report.build_report_context(loaded, ev, rule_set=rule_set, with_plots=False))
+    assert "finite differences" in md and "Biot boundary" in md
+    assert "Surface heat transfer coefficient: 500 W/(m²·K)" in md
+    assert f"{ev.delivered_F_min:.2f} min" in md

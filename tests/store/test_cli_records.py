@@ -16,10 +16,11 @@ LOGGED_CASE = REPO / "demo_cases" / "chili_temperature_drop.toml"
 
 
 @pytest.fixture
-def db(tmp_path, monkeypatch):
+def db(backend, monkeypatch):
+    """The ``--db`` value: an SQLite file or a PostgreSQL URL (tests/store/conftest.py)."""
     monkeypatch.delenv("DEVIATION_DB", raising=False)
     monkeypatch.delenv("DEVIATION_ROLE", raising=False)
-    return str(tmp_path / "cli.db")
+    return backend.target("cli")
 
 
 def run(capsys, *argv):
@@ -35,7 +36,7 @@ def run_json(capsys, *argv):
     return code, json.loads(lines[0]), err
 
 
-def test_operator_supervisor_process_authority_auditor_flow(capsys, db, tmp_path):
+def test_operator_supervisor_process_authority_auditor_flow(capsys, db, backend, tmp_path):
     code, doc, _ = run_json(capsys, "record", "new", CASE, "--db", db, "--actor", "olga", "--role", "operator")
     assert code == 0 and doc["state"] == "evaluated" and doc["evaluated"] is True
     rid = doc["id"]
@@ -86,7 +87,7 @@ def test_operator_supervisor_process_authority_auditor_flow(capsys, db, tmp_path
     bundle = tmp_path / "b.json"
     code, doc, _ = run_json(capsys, "export", rid, "-o", bundle, "--db", db)
     assert code == 0 and doc["records"] == 1 and doc["events"] == 5
-    other = str(tmp_path / "other.db")
+    other = backend.target("other")
     code, doc, _ = run_json(capsys, "import", bundle, "--db", other, "--role", "auditor", "--actor", "ann")
     assert code == 0 and doc["records_added"] == 1 and doc["ok"] is True
     assert open_store(other).verify().ok

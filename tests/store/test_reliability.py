@@ -1,17 +1,17 @@
-"""Reliability of the store on real SQLite files with real processes (no mocks).
+"""Reliability of the store with real processes (no mocks), on SQLite files and on PostgreSQL.
 
 - a writer killed with SIGKILL mid-write leaves a store that opens and verifies, with every
-  event the writer saw committed;
-- two processes appending to the same record at once both land, in order, chain intact;
-- a row edited with the ``sqlite3`` command-line tool is caught by ``verify``, naming the event;
-- a corrupt or foreign file gives a clear error, never a traceback;
-- a tampered bundle is refused on import.
+  event the writer saw committed (both backends);
+- two processes appending to the same record at once both land, in order, chain intact (both);
+- a row edited behind the tool's back (the ``sqlite3`` command-line tool; ``psql``) is caught by
+  ``verify``, naming the event (both);
+- a corrupt or foreign file gives a clear error, never a traceback (SQLite files);
+- a tampered bundle is refused on import (both).
 """
 
 import json
 import os
 import random
-import shutil
 import signal
 import sqlite3
 import subprocess
@@ -26,7 +26,6 @@ from deviation.store import open_store
 
 REPO = Path(__file__).resolve().parents[2]
 ENV = dict(os.environ, PYTHONPATH=str(REPO) + os.pathsep + os.environ.get("PYTHONPATH", ""))
-SQLITE3 = shutil.which("sqlite3")
 
 SNAPSHOT = {"case": {"deviation": {"lot": "L-1"}}, "retort_log_text": "t,T\n" + "0,121.1\n" * 20000}
 OP = dict(actor="olga", role="operator")
@@ -40,21 +39,6 @@ def py(code: str, *args: str, **kw) -> subprocess.Popen:
 def cli(*args: str) -> subprocess.CompletedProcess:
     return subprocess.run([sys.executable, "-m", "deviation.cli", *args], env=ENV, cwd=REPO, text=True,
                           capture_output=True, timeout=120)
-
-
-def sql(db: Path, statement: str) -> None:
-    """Edit the file as an outsider would: with the sqlite3 command-line tool.
-
-    If /usr/bin/sqlite3 is not installed (installing it is not allowed here), the same statement
-    runs through Python's sqlite3 module in a separate process instead.
-    """
-    if SQLITE3:
-        cmd = [SQLITE3, str(db), statement]
-    else:  # pragma: no cover - depends on the machine
-        cmd = [sys.executable, "-c", "import sqlite3,sys; c=sqlite3.connect(sys.argv[1]); "
-               "c.executescript(sys.argv[2]); c.commit()", str(db), statement]
-    out = subprocess.run(cmd, capture_output=True, text=True, timeout=30)
-    assert out.returncode == 0, out.stderr
 
 
 # -- SIGKILL mid-write -------------------------------------------------------------------------
@@ -78,8 +62,8 @@ while True:
 """
 
 
-def test_sigkill_mid_write_leaves_a_store_that_opens_and_verifies(tmp_path):
-    db = tmp_path / "killed.db"
+def test_sigkill_mid_write_leaves_a_store_that_opens_and_verifies(backend):
+    db = backend.target("killed")
     open_store(db).close()
     committed: set[tuple[str, int]] = set()
     rng = random.Random(5)
@@ -123,8 +107,8 @@ print("done", flush=True)
 """
 
 
-def test_two_processes_appending_to_one_record_both_land_in_order(tmp_path):
-    db, go, n = tmp_path / "shared.db", tmp_path / "go", 40
+def test_two_processes_appending_to_one_record_both_land_in_order(backend, tmp_path):
+    db, go, n = backend.target("shared"), tmp_path / "go", 40
     s = open_store(db)
     rid = s.create_record({"case": {}}, lot="L-1", retort_id="R1", process_id="P-1", **OP)
     s.close()
@@ -149,7 +133,7 @@ def test_two_processes_appending_to_one_record_both_land_in_order(tmp_path):
 # -- edits with the sqlite3 tool ---------------------------------------------------------------
 
 
-def _three_records(db: Path) -> list[str]:
+def _three_records(db) -> list[str]:
     s = open_store(db)
     ids = []
     for lot in ("L-1", "L-2", "L-3"):
@@ -183,10 +167,12 @@ EDITS = [
 
 
 @pytest.mark.parametrize("what, statement, seq, reason", EDITS, ids=[e[0] for e in EDITS])
-def test_an_edit_with_the_sqlite3_tool_is_caught_by_verify_naming_the_event(tmp_path, what, statement, seq, reason):
-    db = tmp_path / "edited.db"
+def test_an_edit_behind_the_tools_back_is_caught_by_verify_naming_the_event(backend, what, statement, seq,
+                                                                            reason):
+    # sqlite3 on an SQLite file, psql on PostgreSQL: the same SQL either way.
+    db = backend.target("edited")
     rid = _three_records(db)[1]
-    sql(db, statement.format(rid=rid))
+    backend.sql(db, statement.format(rid=rid))
     res = open_store(db).verify()
     assert not res.ok
     b = res.first_broken
@@ -195,10 +181,11 @@ def test_an_edit_with_the_sqlite3_tool_is_caught_by_verify_naming_the_event(tmp_
         assert (b["record_id"], b["seq"]) == (rid, seq)
 
 
-def test_verify_command_names_the_broken_event_and_exits_1(tmp_path):
-    db = tmp_path / "edited.db"
+def test_verify_command_names_the_broken_event_and_exits_1(backend):
+    db = backend.target("edited")
     rid = _three_records(db)[2]
-    sql(db, f"UPDATE events SET payload = replace(payload, 'second', 'third') WHERE record_id = '{rid}' AND seq = 3")
+    backend.sql(db, f"UPDATE events SET payload = replace(payload, 'second', 'third') "
+                    f"WHERE record_id = '{rid}' AND seq = 3")
     out = cli("verify", "--db", str(db))
     assert out.returncode == 1
     assert f"record {rid} event 3 (note" in " ".join(out.stdout.split())
@@ -206,7 +193,7 @@ def test_verify_command_names_the_broken_event_and_exits_1(tmp_path):
     assert js.returncode == 1
     doc = json.loads(js.stdout)
     assert doc["ok"] is False and doc["first_broken"]["record_id"] == rid and doc["first_broken"]["seq"] == 3
-    ok_db = tmp_path / "fine.db"
+    ok_db = backend.target("fine")
     _three_records(ok_db)
     good = cli("verify", "--db", str(ok_db), "--json")
     assert good.returncode == 0 and json.loads(good.stdout)["ok"] is True
@@ -282,8 +269,8 @@ def test_corrupt_pages_give_a_clear_error_or_a_failed_verify(tmp_path):
 # -- tampered bundle ------------------------------------------------------------------------------
 
 
-def test_import_of_a_tampered_bundle_is_refused_by_the_command(tmp_path):
-    src, dst, bundle = tmp_path / "src.db", tmp_path / "dst.db", tmp_path / "bundle.json"
+def test_import_of_a_tampered_bundle_is_refused_by_the_command(backend, tmp_path):
+    src, dst, bundle = backend.target("src"), backend.target("dst"), tmp_path / "bundle.json"
     ids = _three_records(src)
     out = cli("export", "--all", "-o", str(bundle), "--db", str(src), "--json")
     assert out.returncode == 0, out.stderr

@@ -15,8 +15,8 @@ EVALUATION = {"engine_version": "0.1.0", "delivered_F_min": 7.0,
 
 
 @pytest.fixture
-def store(tmp_path):
-    s = open_store(tmp_path / "roles.db")
+def store(backend):  # SQLite and PostgreSQL (tests/store/conftest.py)
+    s = backend.open("roles")
     yield s
     s.close()
 

@@ -1,5 +1,8 @@
-"""The record store on real SQLite files: schema, chains, views, export/import, drafts.
+"""The record store on real SQLite files and a real PostgreSQL server: schema, chains, views,
+export/import, drafts.
 
+Most tests take the ``backend`` fixture (tests/store/conftest.py) and run on both; the ones
+about SQLite files as such (WAL, foreign or damaged files, paths) stay SQLite-only.
 No engine here: hand-written snapshot and evaluation dicts stand in for a case and its result.
 """
 
@@ -34,8 +37,8 @@ def new(store, lot="L-1", retort="R1", snapshot=SNAPSHOT):
 
 
 @pytest.fixture
-def store(tmp_path):
-    s = open_store(tmp_path / "records.db")
+def store(backend):
+    s = backend.open("records")
     yield s
     s.close()
 
@@ -184,16 +187,14 @@ def test_verify_ok_counts_every_event(store):
     assert res.head["global_seq"] == 6
 
 
-def test_verify_names_an_event_changed_behind_the_store(store, tmp_path):
+def test_verify_names_an_event_changed_behind_the_store(store, backend):
     rid = new(store)
     store.note(rid, "original text", **OP)
     store.note(rid, "later", **OP)
     store.close()
-    con = sqlite3.connect(tmp_path / "records.db")
-    with con:
-        con.execute("UPDATE events SET payload = replace(payload, 'original', 'innocent') WHERE seq = 2")
-    con.close()
-    res = open_store(tmp_path / "records.db").verify()
+    backend.sql(backend.target("records"),
+                "UPDATE events SET payload = replace(payload, 'original', 'innocent') WHERE seq = 2")
+    res = backend.open("records").verify()
     assert not res.ok
     assert res.first_broken["record_id"] == rid and res.first_broken["seq"] == 2
     assert res.first_broken["kind"] == "note" and "does not match its hash" in res.first_broken["reason"]
@@ -202,7 +203,16 @@ def test_verify_names_an_event_changed_behind_the_store(store, tmp_path):
 # -- schema --------------------------------------------------------------------------------
 
 
-def test_fresh_store_has_the_current_schema_and_wal(tmp_path):
+def test_fresh_store_has_the_current_schema(backend):
+    s = backend.open("x")
+    assert s.schema_version() == S.SCHEMA_VERSION == len(S.MIGRATIONS)
+    s.close()
+    versions = [r[0] for r in backend.query(backend.target("x"),
+                                            "SELECT version FROM schema_version ORDER BY version")]
+    assert versions == list(range(1, S.SCHEMA_VERSION + 1))
+
+
+def test_fresh_sqlite_store_has_the_current_schema_and_wal(tmp_path):
     s = open_store(tmp_path / "x.db")
     assert s.schema_version() == S.SCHEMA_VERSION == len(S.MIGRATIONS)
     s.close()
@@ -212,37 +222,53 @@ def test_fresh_store_has_the_current_schema_and_wal(tmp_path):
     assert versions == list(range(1, S.SCHEMA_VERSION + 1))
 
 
-def test_an_older_store_is_upgraded_with_its_records_kept(tmp_path):
-    path = tmp_path / "old.db"
-    s = open_store(path)
+# Undo migrations 3 and 2 (the same SQL on both backends): what a version-1 store holds.
+TO_VERSION_1 = ("DROP INDEX uq_events_event_id", "ALTER TABLE events DROP COLUMN event_id",
+                "DROP TABLE drafts", "DELETE FROM schema_version WHERE version > 1")
+
+
+def test_an_older_store_is_upgraded_with_its_records_kept(backend):
+    s = backend.open("old")
     rid = new(s)
     s.note(rid, "kept", **OP)
+    hashes = [e.hash for e in s.events(rid)]
     s.close()
-    # Make it a version-1 store: no drafts table, no version-2 row.
-    con = sqlite3.connect(path)
-    with con:
-        con.execute("DROP TABLE drafts")
-        con.execute("DELETE FROM schema_version WHERE version = 2")
-    con.close()
-    s = open_store(path)
-    assert s.schema_version() == 2
-    assert [e.payload.get("text") for e in s.events(rid)] == [None, "kept"]
+    for statement in TO_VERSION_1:
+        backend.sql(backend.target("old"), statement)
+    assert backend.query(backend.target("old"), "SELECT max(version) FROM schema_version") == [(1,)]
+    s = open_store(backend.target("old"))
+    assert s.schema_version() == S.SCHEMA_VERSION == 3
+    evs = s.events(rid)
+    assert [e.payload.get("text") for e in evs] == [None, "kept"]
+    assert [e.hash for e in evs] == hashes and [e.event_id for e in evs] == [None, None]
     assert s.verify().ok
     s.save_draft("k", {"a": 1})
     assert s.load_draft("k") == {"a": 1}
+    e = s.note(rid, "after the upgrade", event_id="key-1", **OP)
+    assert s.note(rid, "after the upgrade", event_id="key-1", **OP) == e  # keys work now
+    assert s.verify().ok
 
 
-def test_a_newer_store_is_refused_and_left_untouched(tmp_path):
-    path = tmp_path / "new.db"
-    open_store(path).close()
-    con = sqlite3.connect(path)
-    with con:
-        con.execute("INSERT INTO schema_version VALUES (99, 'deviation', '2099-01-01T00:00:00Z', '9.0')")
-    con.close()
-    before = path.read_bytes()
+def test_a_newer_store_is_refused_and_left_untouched(backend):
+    target = backend.target("new")
+    open_store(target).close()
+    backend.sql(target, "INSERT INTO schema_version VALUES (99, 'deviation', '2099-01-01T00:00:00Z', '9.0')")
+    listing = "SELECT version, app, applied_utc, tool_version FROM schema_version ORDER BY version"
+    before = backend.query(target, listing)
+    raw = Path(target).read_bytes() if backend.name == "sqlite" else None
     with pytest.raises(StoreError, match=r"newer deviation \(schema version 99"):
-        open_store(path)
-    assert path.read_bytes() == before
+        open_store(target)
+    assert backend.query(target, listing) == before
+    if raw is not None:
+        assert Path(target).read_bytes() == raw
+
+
+def test_another_apps_tables_are_refused(backend):
+    target = backend.target("shop")
+    backend.sql(target, "CREATE TABLE customers (id INTEGER PRIMARY KEY, name TEXT)")
+    with pytest.raises(StoreError, match=r"is not a deviation record store \(it holds other tables: customers\)"):
+        open_store(target)
+    assert backend.query(target, "SELECT count(*) FROM customers") == [(0,)]  # left as it was
 
 
 def test_foreign_sqlite_database_is_refused(tmp_path):
@@ -323,10 +349,10 @@ def _filled(store):
     return a, b
 
 
-def test_export_import_keeps_ids_and_hashes(store, tmp_path):
+def test_export_import_keeps_ids_and_hashes(store, backend):
     a, b = _filled(store)
     bundle = store.export_bundle()
-    target = open_store(tmp_path / "target.db")
+    target = backend.open("target")
     new(target, lot="already-here")  # the target's own chain continues under the imports
     res = target.import_bundle(json.loads(json.dumps(bundle)), actor="ann", role="auditor")
     assert (res.records_added, res.events_added) == (2, 5)
@@ -341,10 +367,10 @@ def test_export_import_keeps_ids_and_hashes(store, tmp_path):
     assert (again.records_added, again.events_added, again.records_unchanged) == (0, 0, 2)
 
 
-def test_import_extends_a_record_exported_earlier(store, tmp_path):
+def test_import_extends_a_record_exported_earlier(store, backend):
     a, _ = _filled(store)
     early = store.export_bundle([a])
-    target = open_store(tmp_path / "t.db")
+    target = backend.open("t")
     target.import_bundle(early)
     store.decide(a, decision="destroy", reason="unsafe", **PA)
     res = target.import_bundle(store.export_bundle([a]))
@@ -352,9 +378,9 @@ def test_import_extends_a_record_exported_earlier(store, tmp_path):
     assert target.record(a).state == "decided" and target.verify().ok
 
 
-def test_import_refuses_a_divergent_record(store, tmp_path):
+def test_import_refuses_a_divergent_record(store, backend):
     a, _ = _filled(store)
-    target = open_store(tmp_path / "t.db")
+    target = backend.open("t")
     target.import_bundle(store.export_bundle([a]))
     target.note(a, "written in the target", **OP)
     store.note(a, "written in the source", **OP)
@@ -391,29 +417,29 @@ def _tamper(bundle, how):
     ("header", r"record header differs from the entered event in lot"),
     ("rehash-one", r"event 3 \(hold-placed\): prev_hash does not match"),
 ])
-def test_import_refuses_a_tampered_bundle(store, tmp_path, how, message):
+def test_import_refuses_a_tampered_bundle(store, backend, how, message):
     a, _ = _filled(store)
     bundle = _tamper(store.export_bundle([a]), how)
-    target = open_store(tmp_path / "t.db")
+    target = backend.open("t")
     with pytest.raises(StoreError, match=f"import refused: record {a}.*" + message):
         target.import_bundle(bundle)
     assert target.count_records() == 0 and target.count_events() == 0
 
 
-def test_import_refuses_a_bundle_changed_outside_the_records(store, tmp_path):
+def test_import_refuses_a_bundle_changed_outside_the_records(store, backend):
     _filled(store)
     bundle = store.export_bundle()
     bundle["source_store"] = "elsewhere"
     with pytest.raises(StoreError, match="sha256 does not match"):
-        open_store(tmp_path / "t.db").import_bundle(bundle)
+        backend.open("t").import_bundle(bundle)
     with pytest.raises(StoreError, match="not a deviation-record-bundle"):
-        open_store(tmp_path / "t.db").import_bundle({"records": []})
+        backend.open("t").import_bundle({"records": []})
 
 
-def test_bundle_files_round_trip(store, tmp_path):
+def test_bundle_files_round_trip(store, backend, tmp_path):
     _filled(store)
     S.write_bundle(store.export_bundle(), tmp_path / "b.json")
-    assert open_store(tmp_path / "t.db").import_bundle(S.read_bundle(tmp_path / "b.json")).records_added == 2
+    assert backend.open("t").import_bundle(S.read_bundle(tmp_path / "b.json")).records_added == 2
     (tmp_path / "bad.json").write_text("{not json", encoding="utf-8")
     with pytest.raises(StoreError, match="not JSON"):
         S.read_bundle(tmp_path / "bad.json")
@@ -432,3 +458,112 @@ def test_drafts_are_mutable_and_not_records(store):
     store.delete_draft("entry")
     assert store.load_draft("entry") is None
     assert store.verify().ok
+
+
+# -- the same hashes on both backends --------------------------------------------------------
+
+
+def test_a_record_hashes_the_same_on_sqlite_and_postgresql(tmp_path, pg_backend):
+    sqlite_store = open_store(tmp_path / "plant.db")
+    a, b = _filled(sqlite_store)
+    sqlite_store.decide(a, decision="reprocess", reason="F0 short ünïcødé °C", **PA)
+    bundle = json.loads(json.dumps(sqlite_store.export_bundle()))  # through a file's text
+    pg = pg_backend.open("central")
+    res = pg.import_bundle(bundle, actor="ann", role="auditor")
+    assert (res.records_added, res.events_added) == (2, 6)
+    assert pg.verify().ok
+    for rid in (a, b):
+        assert [e.hash for e in pg.events(rid)] == [e.hash for e in sqlite_store.events(rid)]
+        assert [e.payload for e in pg.events(rid)] == [e.payload for e in sqlite_store.events(rid)]
+    # ...and back: PostgreSQL's export re-imports into a fresh SQLite store, hashes unchanged.
+    back = open_store(tmp_path / "back.db")
+    back.import_bundle(pg.export_bundle())
+    assert back.verify().ok
+    assert [e.hash for e in back.events(a)] == [e.hash for e in sqlite_store.events(a)]
+    # Written on PostgreSQL, the hash is recomputed here from the stored fields alone.
+    e = pg.note(a, "written on the server", **OP)
+    assert e.hash == event_hash(e.record_id, e.seq, e.kind, e.utc, e.actor, e.role,
+                                canonical_json(e.payload), e.prev_hash)
+    assert open_store(tmp_path / "back.db").import_bundle(pg.export_bundle([a])).events_added == 1
+
+
+# -- idempotency keys ------------------------------------------------------------------------
+
+
+def test_an_append_repeated_with_its_event_id_is_recognised_not_written_twice(store):
+    rid = new(store)
+    first = store.note(rid, "once", event_id="terminal-7-0001", **OP)
+    again = store.note(rid, "once", event_id="terminal-7-0001", **OP)
+    assert again == first and first.event_id == "terminal-7-0001"
+    assert store.count_events() == 2 and store.verify().ok
+    store.add_evaluation(rid, EVALUATION, **OP)
+    store.place_hold(rid, reason="drop", **SUP)
+    d = store.decide(rid, decision="destroy", reason="x", event_id="pa-1", **PA)
+    # A decided record refuses a second decision, but the retry of the same one is recognised.
+    assert store.decide(rid, decision="destroy", reason="x", event_id="pa-1", **PA) == d
+    with pytest.raises(StoreError, match="event id pa-1 is already used by event 5 \\(disposition\\)"):
+        store.note(rid, "other", event_id="pa-1", **OP)
+    made = store.create_record(SNAPSHOT, lot="L-2", retort_id="R1", process_id="P-1", event_id="new-1", **OP)
+    assert store.create_record(SNAPSHOT, lot="L-2", retort_id="R1", process_id="P-1", event_id="new-1",
+                               **OP) == made
+    assert store.count_records() == 2
+    generated = store.note(rid, "key made by the store", **OP).event_id
+    assert re.fullmatch(r"[0-9a-f]{32}", generated)
+    with pytest.raises(StoreError, match="an event id must be"):
+        store.note(rid, "x", event_id="k" * 41, **OP)
+
+
+def _lose_commit_reply(monkeypatch, store, times=1):
+    """The COMMIT reaches the database but its answer is lost (as when the server goes away at
+    that instant): the write is stored, the client sees a dropped connection."""
+    from contextlib import contextmanager
+
+    from sqlalchemy import exc as sa_exc
+
+    real = store._write
+    left = {"n": times}
+
+    @contextmanager
+    def write(**kw):
+        with real(**kw) as conn:
+            yield conn
+        if left["n"] > 0:
+            left["n"] -= 1
+            try:
+                raise sa_exc.OperationalError("COMMIT", {}, ConnectionError("server closed the connection"),
+                                              connection_invalidated=True)
+            except sa_exc.OperationalError as exc:
+                raise store._store_error(exc) from None
+
+    monkeypatch.setattr(store, "_write", write)
+
+
+def test_a_commit_with_a_lost_answer_is_retried_without_a_duplicate(store, monkeypatch):
+    rid = new(store)
+    _lose_commit_reply(monkeypatch, store)
+    e = store.note(rid, "the answer was lost", **OP)
+    evs = store.events(rid)
+    assert [x.seq for x in evs] == [1, 2] and evs[-1] == e  # stored once, the retry recognised it
+    _lose_commit_reply(monkeypatch, store)
+    rid2 = store.create_record(SNAPSHOT, lot="L-9", retort_id="R1", process_id="P-1", **OP)
+    assert store.count_records() == 2 and [x.kind for x in store.events(rid2)] == ["entered"]
+    assert store.verify().ok
+    # A write that cannot recognise itself is not repeated: the caller is told it may be stored.
+    _lose_commit_reply(monkeypatch, store)
+    with pytest.raises(S.StoreUnavailable, match="may have been stored") as info:
+        store._retrying(lambda conn: store._insert_event(
+            conn, record_id=rid, kind="note", utc=S.utc_now(), actor="olga", role="operator",
+            payload_json=canonical_json({"text": "raw"})))
+    assert info.value.outcome_unknown and info.value.exit_code == 3
+    assert store.count_events() == 4  # it was stored, once
+
+
+def test_text_longer_than_its_column_is_refused_alike_on_both_backends(store):
+    with pytest.raises(StoreError, match="lot is 201 characters long; the store keeps at most 200"):
+        store.create_record(SNAPSHOT, lot="L" * 201, retort_id="R1", process_id="P-1", **OP)
+    rid = new(store)
+    with pytest.raises(StoreError, match="actor is 201 characters long"):
+        store.note(rid, "x", actor="a" * 201, role="operator")
+    with pytest.raises(StoreError, match="retort_id contains a NUL character"):
+        store.create_record(SNAPSHOT, lot="L", retort_id="R\x001", process_id="P-1", **OP)
+    assert store.count_records() == 1 and store.verify().ok

@@ -14,10 +14,10 @@ ROWS = (
     ("target F0 [min]", "target_F_min", "F"),
     ("scheduled F0 [min]", "scheduled_F_min", "F"),
     ("extra minutes", "extension_to_target_min", "F"),
-    ("spoilage / container", "spoilage_probability", "p"),
-    ("botulinum log red.", "botulinum_log_reductions", "F"),
-    ("lethality established", "lethality_established", "b"),
-    ("covered by alternate", "covered_by_alternate", "b"),
+    ("spoilage/can", "spoilage_probability", "p"),
+    ("botulinum logs", "botulinum_log_reductions", "F"),
+    ("lethality est.", "lethality_established", "b"),
+    ("alternate met", "covered_by_alternate", "b"),
     ("disposition", "guidance.disposition", "s"),
     ("flags", "flags", "s"),
     ("engine version", "engine_version", "s"),
@@ -39,7 +39,7 @@ def _fmt(value, how: str) -> str:
     if value is None:
         return "—"
     if how == "F" and isinstance(value, (int, float)):
-        return f"{value:.6g}"
+        return f"{value:.5g}"
     if how == "p" and isinstance(value, (int, float)):
         return fmt_probability(value).split(" (")[0]
     if how == "b":

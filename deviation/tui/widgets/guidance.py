@@ -50,6 +50,7 @@ def guidance_renderable(ev: Evaluation) -> Group:
         body.append(Text("What to do now:", style="bold"))
         for i, a in enumerate(g["actions"], 1):
             body.append(Text(f" {i}. {a}"))
+    body.append(Text(f"⚠ {g.get('caution') or CAUTION + ' ' + CAUTION_EXTRA}", style="bold"))
     return Group(*body)
 
 
@@ -86,4 +87,4 @@ class CautionBar(Static):
     """
 
     def __init__(self, **kw) -> None:
-        super().__init__(Text(f"⚠ {CAUTION} {CAUTION_EXTRA}"), **kw)
+        super().__init__(Text(f"⚠ {CAUTION}"), **kw)

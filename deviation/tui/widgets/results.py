@@ -37,6 +37,11 @@ class FloorFigures:
     low_running: bool  # a temperature-low interval is still open
 
 
+def fmt_F(value: float) -> str:
+    """An F value [min]: two decimals, or three significant digits below 0.1 min."""
+    return f"{value:.2f}" if abs(value) >= 0.1 or value == 0 else f"{value:.2g}"
+
+
 class ResultsPanel(Static):
     """Figures of the latest evaluation; ``generation`` counts the refreshes (for tests)."""
 
@@ -76,27 +81,28 @@ class ResultsPanel(Static):
         t.add_column(justify="left")
         target = ev.target_F_min
         if figures.so_far_F_min is not None:
-            at = f"to min {figures.so_far_at_min:.1f}" if figures.so_far_at_min is not None else "whole record"
-            t.add_row("F0 delivered so far", f"{figures.so_far_F_min:.2f} min", at)
+            at = f"to min {figures.so_far_at_min:.1f}" if figures.so_far_at_min is not None else "whole log"
+            t.add_row("F0 so far", f"{fmt_F(figures.so_far_F_min)} min", at)
         else:
-            t.add_row("F0 delivered so far", "—", "set the cycle start")
+            t.add_row("F0 so far", "—", "set Steam on")
         proj = ev.projected_F_min if ev.projected_F_min is not None else ev.delivered_F_min
         ok = proj >= target
-        t.add_row("F0 projected", f"{proj:.2f} min",
-                  Text(("✓ meets" if ok else "✗ below") + f" target {target:g}",
-                       style="green" if ok else "bold red"))
+        t.add_row("F0 projected", f"{fmt_F(proj)} min",
+                  Text(("✓ meets " if ok else "✗ below ") + f"{target:g}", style="green" if ok else "bold red"))
         ext = ev.extension_to_target_min
         if ext is None:
-            t.add_row("extra minutes", "n/a", ev.extension_reason or "")
+            t.add_row("extra hold", "n/a", (ev.extension_reason or "")[:40])
         elif ext == 0.0:
-            t.add_row("extra minutes", "0.0 min", "none needed")
+            t.add_row("extra hold", "0.0 min", "none needed")
         else:
-            t.add_row("extra minutes", Text(f"+{ext:.1f} min", style="bold"), "at process temp.")
-        t.add_row("spoilage / container", fmt_probability(ev.spoilage_probability).split(" (")[0],
-                  f"target {fmt_probability(ev.target_spoilage_probability).split(' (')[0]}")
+            t.add_row("extra hold", Text(f"+{ext:.1f} min", style="bold"), "at process temp.")
+        p_ok = ev.spoilage_probability <= ev.target_spoilage_probability * (1 + 1e-9)
+        t.add_row("spoilage/can", f"{ev.spoilage_probability:.1e}",
+                  Text(("✓ ≤ " if p_ok else "✗ > ") + f"{ev.target_spoilage_probability:.0e}",
+                       style="green" if p_ok else "bold red"))
         bot_ok = ev.botulinum_log_reductions >= ev.botulinum_log_reductions_required
-        t.add_row("botulinum log red.", f"{ev.botulinum_log_reductions:.1f}",
-                  Text(("✓ meets" if bot_ok else "✗ below") + f" {ev.botulinum_log_reductions_required:g}D",
+        t.add_row("botulinum", f"{ev.botulinum_log_reductions:.1f} log",
+                  Text(("✓ meets " if bot_ok else "✗ below ") + f"{ev.botulinum_log_reductions_required:g}D",
                        style="green" if bot_ok else "bold red"))
         basis = "imported retort log" if figures.from_log else "filed cycle + entries"
         if figures.low_running:

@@ -1,0 +1,459 @@
+"""Floor entry: the operator records a deviation while the cycle runs and sees it evaluated.
+
+Keys (shown in the footer): Ctrl+L low now (with the reading typed), Ctrl+B back at process
+temperature now, Ctrl+T a typed time and reading, Ctrl+O import a retort log, Ctrl+R drop the last
+reading, Ctrl+S save the record, Ctrl+N new entry, Ctrl+G curves/guidance (narrow terminals).
+Every change is kept as a draft in the store, restored when the app starts again.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+from textual import work
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.screen import Screen
+from textual.widgets import Footer, Input, Label, Select, Static
+from textual.worker import get_current_worker
+
+from deviation.errors import CaseError, DeviationError
+from deviation.tui.entry import (
+    FloorEntry,
+    Reading,
+    build_case,
+    field_messages,
+    minutes_since,
+    parse_cycle_start,
+    parse_reading,
+    parse_time,
+    with_reading,
+    without_last_reading,
+)
+from deviation.tui.screens.dialogs import FileChoice, ImportLogDialog
+from deviation.tui.sources import FiledProcess, filed_processes
+from deviation.tui.widgets.guidance import CautionBar, GuidancePanel
+from deviation.tui.widgets.plots import CyclePlots
+from deviation.tui.widgets.results import FloorFigures, ResultsPanel
+
+# (field, label, placeholder) of the form, in order.
+FORM = (
+    ("lot", "Lot", "lot code"),
+    ("retort", "Retort", "retort id"),
+    ("lot_size", "Lot size", "containers"),
+    ("initial_temperature", "Initial °C", "initial temperature °C"),
+    ("cycle_start", "Steam on", "HH:MM (clock)"),
+)
+
+
+class StatusLine(Static):
+    """One line: the screen, who is at the terminal, the store."""
+
+    DEFAULT_CSS = "StatusLine { height: 1; background: $panel; padding: 0 1; }"
+
+
+def so_far(ev, now_min: float | None) -> float | None:
+    """Delivered F0 up to ``now_min`` read off the evaluation's cumulative curve [min]."""
+    if now_min is None:
+        return None
+    t = np.asarray(ev.cold_spot.time_min)
+    F = np.asarray(ev.cold_spot.cumulative_F_min)
+    return float(np.interp(now_min, t, F))
+
+
+class FloorScreen(Screen):
+    """Enter a deviation as it happens."""
+
+    TITLE_TEXT = "Floor entry"
+    BINDINGS = [
+        Binding("ctrl+l", "low_now", "Low now", priority=True),
+        Binding("ctrl+b", "back_now", "Back now", priority=True),
+        Binding("ctrl+t", "typed", "Typed entry", priority=True),
+        Binding("ctrl+o", "import_log", "Import log", priority=True),
+        Binding("ctrl+s", "save", "Save", priority=True),
+        Binding("ctrl+r", "drop_last", "Undo reading", show=False, priority=True),
+        Binding("ctrl+n", "new_entry", "New", show=False, priority=True),
+        Binding("ctrl+g", "toggle_curves", "Curves", priority=True),
+    ]
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.entry = FloorEntry()
+        self.processes: dict[str, FiledProcess] = {}
+        self._request = 0
+        self._restoring = False
+        self.last_error: str | None = None
+
+    # -- layout ------------------------------------------------------------------------------
+
+    def compose(self) -> ComposeResult:
+        yield StatusLine(id="status")
+        with Horizontal(id="floor"):
+            with VerticalScroll(id="entry-form"):
+                yield Label("Filed process", classes="form-head")
+                yield Select([], prompt="choose the filed process", id="process", compact=True)
+                yield Static("", id="product")
+                for name, label, placeholder in FORM:
+                    with Horizontal(classes="row"):
+                        yield Label(label, classes="row-label")
+                        yield Input(placeholder=placeholder, id=name, compact=True)
+                    yield Static("", id=f"{name}-error", classes="field-error")
+                yield Static("", id="now-line")
+                yield Label("While the cycle runs", classes="form-head")
+                with Horizontal(classes="row"):
+                    yield Label("Reading °C", classes="row-label")
+                    yield Input(placeholder="e.g. 117.5", id="reading", compact=True)
+                with Horizontal(classes="row"):
+                    yield Label("At", classes="row-label")
+                    yield Input(placeholder="min or HH:MM", id="at", compact=True)
+                yield Static("", id="entry-error", classes="field-error")
+                yield Static("", id="readings")
+            with Vertical(id="floor-right"):
+                yield ResultsPanel(id="results")
+                with Horizontal(id="floor-lower"):
+                    yield GuidancePanel(id="guidance")
+                    yield CyclePlots(id="plots")
+        yield CautionBar(id="caution")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.load_processes()
+        self.restore_draft()
+        self.refresh_status()
+
+    def refresh_status(self) -> None:
+        ctx = self.app.ctx
+        self.query_one(StatusLine).update(
+            f"deviation · {self.TITLE_TEXT} · {ctx.actor} ({ctx.role}) · store {ctx.store_name}"
+            "   F1 help  F2 floor  F3 holds  F4 audit")
+
+    def on_screen_resume(self) -> None:
+        self.refresh_status()
+
+    # -- processes and drafts ----------------------------------------------------------------
+
+    def load_processes(self) -> None:
+        ctx = self.app.ctx
+        found = filed_processes(ctx.store, ctx.cases_dir)
+        self.processes = {p.key: p for p in found}
+        sel = self.query_one("#process", Select)
+        sel.set_options([(p.id + (f" v{p.version}" if p.version else ""), p.key) for p in found])
+
+    def restore_draft(self) -> None:
+        ctx = self.app.ctx
+        try:
+            draft = ctx.store.load_draft(ctx.draft_key)
+        except DeviationError as exc:
+            self.notify(str(exc), severity="error")
+            draft = None
+        entry = FloorEntry.from_draft(draft)
+        if entry.process_key not in self.processes:
+            entry = replace(entry, process_key=None)
+        self._restoring = True
+        try:
+            self.entry = entry
+            sel = self.query_one("#process", Select)
+            sel.value = entry.process_key if entry.process_key else Select.NULL
+            for name, _, _ in FORM:
+                self.query_one(f"#{name}", Input).value = getattr(entry, name)
+        finally:
+            self._restoring = False
+        if draft and not entry.is_blank():
+            self.notify("Unsaved entry restored from the draft kept in the store.", title="Draft restored")
+        self.show_product()
+        self.show_readings()
+        self.evaluate()
+
+    def save_draft(self) -> None:
+        ctx = self.app.ctx
+        try:
+            ctx.store.save_draft(ctx.draft_key, self.entry.to_draft())
+        except DeviationError as exc:
+            self.notify(f"draft not kept: {exc}", severity="error")
+
+    # -- input events ------------------------------------------------------------------------
+
+    def on_input_changed(self, event: Input.Changed) -> None:
+        name = event.input.id
+        if self._restoring or name not in {f for f, _, _ in FORM}:
+            return
+        self.entry = replace(self.entry, **{name: event.value})
+        if name == "cycle_start":
+            self.entry = replace(self.entry, cycle_start_iso=None)
+        self.save_draft()
+        self.evaluate()
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        # Enter in the reading box: a low reading now (the most frequent entry); in "At": typed.
+        if event.input.id == "reading":
+            self.action_low_now()
+        elif event.input.id == "at":
+            self.action_typed()
+        else:
+            self.focus_next()
+
+    def on_select_changed(self, event: Select.Changed) -> None:
+        if self._restoring or event.select.id != "process":
+            return
+        key = event.value if event.value is not Select.NULL else None
+        if key == self.entry.process_key:
+            return
+        self.entry = replace(self.entry, process_key=key)
+        self.show_product()
+        self.save_draft()
+        self.evaluate()
+
+    # -- time --------------------------------------------------------------------------------
+
+    def cycle_start(self):
+        """The cycle start as a date-time (None when not set); raises on a bad value."""
+        text = self.entry.cycle_start.strip()
+        if not text:
+            return None
+        from datetime import datetime
+
+        if self.entry.cycle_start_iso:
+            return datetime.fromisoformat(self.entry.cycle_start_iso)
+        start = parse_cycle_start(text, self.app.ctx.clock())
+        self.entry = replace(self.entry, cycle_start_iso=start.isoformat())
+        return start
+
+    def now_min(self) -> float | None:
+        try:
+            start = self.cycle_start()
+        except DeviationError:
+            return None
+        return None if start is None else minutes_since(start, self.app.ctx.clock())
+
+    # -- actions -----------------------------------------------------------------------------
+
+    def _process(self) -> FiledProcess | None:
+        return self.processes.get(self.entry.process_key) if self.entry.process_key else None
+
+    def _entry_error(self, text: str | None) -> None:
+        self.last_error = text
+        box = self.query_one("#entry-error", Static)
+        box.update(f"✗ {text}" if text else "")
+        box.set_class(bool(text), "-shown")
+
+    def _add(self, reading: Reading) -> None:
+        self.entry = with_reading(self.entry, reading)
+        self._entry_error(None)
+        self.query_one("#reading", Input).value = ""
+        self.save_draft()
+        self.show_readings()
+        self.evaluate()
+
+    def _now_or_error(self) -> float | None:
+        try:
+            start = self.cycle_start()
+        except DeviationError as exc:
+            self._entry_error(str(exc))
+            return None
+        if start is None:
+            self._entry_error("set Steam on (the cycle start, HH:MM) to enter a reading 'now', or type "
+                              "a time in At and press Ctrl+T")
+            return None
+        return minutes_since(start, self.app.ctx.clock())
+
+    def action_low_now(self) -> None:
+        text = self.query_one("#reading", Input).value
+        try:
+            value = parse_reading(text)
+        except DeviationError as exc:
+            self._entry_error(str(exc))
+            return
+        now = self._now_or_error()
+        if now is not None:
+            self._add(Reading(round(now, 4), value, "low"))
+
+    def action_back_now(self) -> None:
+        proc = self._process()
+        if proc is None:
+            self._entry_error("choose the filed process first")
+            return
+        now = self._now_or_error()
+        if now is not None:
+            self._add(Reading(round(now, 4), float(proc.process["process_temperature_C"]), "back"))
+
+    def action_typed(self) -> None:
+        try:
+            value = parse_reading(self.query_one("#reading", Input).value)
+            start = self.cycle_start()
+            at = parse_time(self.query_one("#at", Input).value, start, self.app.ctx.clock())
+        except DeviationError as exc:
+            self._entry_error(str(exc))
+            return
+        self.query_one("#at", Input).value = ""
+        self._add(Reading(at, value, "typed"))
+
+    def action_drop_last(self) -> None:
+        if self.entry.readings:
+            self.entry = without_last_reading(self.entry)
+            self.save_draft()
+            self.show_readings()
+            self.evaluate()
+
+    def action_new_entry(self) -> None:
+        self.entry = FloorEntry(process_key=self.entry.process_key)
+        self._restoring = True
+        try:
+            for name, _, _ in FORM:
+                self.query_one(f"#{name}", Input).value = ""
+        finally:
+            self._restoring = False
+        self.app.ctx.store.delete_draft(self.app.ctx.draft_key)
+        self.show_readings()
+        self.evaluate()
+
+    def action_toggle_curves(self) -> None:
+        self.toggle_class("-show-curves")
+
+    def action_import_log(self) -> None:
+        def read(choice: FileChoice) -> None:
+            from deviation.case import _read_text  # the case reader's own messages
+            from deviation.profile import parse_log_text
+
+            path = Path(choice.path).expanduser()
+            text = _read_text(path, what="retort log", named_in="import")
+            parse_log_text(text, source=str(path))  # refuse a bad log before it is kept
+            self.entry = replace(self.entry, retort_log_text=text, retort_log_source=str(path))
+
+        def done(choice: FileChoice | None) -> None:
+            if choice is not None:
+                self.save_draft()
+                self.show_readings()
+                self.notify(f"retort log {Path(choice.path).name} imported")
+                self.evaluate()
+
+        self.app.push_screen(ImportLogDialog(apply=read), done)
+
+    def import_log_text(self, text: str, source: str) -> None:
+        """Attach a retort log (used by the import dialog and by a watch)."""
+        self.entry = replace(self.entry, retort_log_text=text, retort_log_source=source)
+        self.save_draft()
+        self.show_readings()
+        self.evaluate()
+
+    def action_save(self) -> None:
+        from deviation import roles
+        from deviation.evaluate import evaluate_case
+
+        ctx = self.app.ctx
+        proc = self._process()
+        try:
+            role = roles.check_role(ctx.actor, ctx.role, "enter")
+            if proc is None:
+                raise DeviationError("choose the filed process first", source="process")
+            built = build_case(proc.process, self.entry, self.now_min())
+            loaded = built.loaded
+            ev = evaluate_case(loaded).model_dump(mode="json")
+            dev = loaded.case.deviation
+            rid = ctx.store.create_record(loaded.snapshot(), actor=ctx.actor, role=role, lot=dev.lot,
+                                          retort_id=dev.retort_id, process_id=loaded.case.process.id,
+                                          process_version=proc.version)
+            ctx.store.add_evaluation(rid, ev, actor=ctx.actor, role=role, snapshot_seq=1,
+                                     options={"conservative": False, "what_if": True})
+        except CaseError as exc:
+            self.show_field_errors(exc)
+            self.notify(str(exc), title="Not saved", severity="error")
+            return
+        except DeviationError as exc:
+            self.notify(str(exc), title="Not saved", severity="error")
+            return
+        self.saved_record_id = rid
+        disposition = (ev.get("guidance") or {}).get("disposition")
+        self.notify(f"Record {rid} saved (lot {dev.lot}, guidance {disposition}). A supervisor holds it "
+                    "on the holds board (F3).", title="Saved")
+        self.action_new_entry()
+
+    # -- evaluation --------------------------------------------------------------------------
+
+    def show_product(self) -> None:
+        proc = self._process()
+        self.query_one("#product", Static).update(
+            f"{proc.product} ({'library' if proc.origin == 'process library' else Path(proc.origin).name})"
+            if proc else "")
+
+    def show_readings(self) -> None:
+        lines = [r.describe() for r in sorted(self.entry.readings, key=lambda r: r.time_min)]
+        if self.entry.retort_log_source:
+            lines.insert(0, f"log: {Path(self.entry.retort_log_source).name}")
+        self.query_one("#readings", Static).update("\n".join(lines) or "no readings yet")
+
+    def show_field_errors(self, exc: CaseError | None) -> dict[str, str]:
+        per, rest = field_messages(exc) if exc is not None else ({}, [])
+        for name, _, _ in FORM:
+            if name == "cycle_start":
+                continue
+            msg = per.get(name)
+            box = self.query_one(f"#{name}-error", Static)
+            box.update(f"✗ {msg}" if msg else "")
+            box.set_class(bool(msg), "-shown")
+            self.query_one(f"#{name}", Input).set_class(bool(msg), "-invalid")
+        return per
+
+    def evaluate(self) -> None:
+        """Validate the entry and evaluate it (in a worker thread); the panels update when done."""
+        self._request += 1
+        request = self._request
+        proc = self._process()
+        box = self.query_one("#cycle_start-error", Static)
+        try:
+            start = self.cycle_start()
+            box.update("")
+            box.set_class(False, "-shown")
+        except DeviationError as exc:
+            start = None
+            box.update(f"✗ {exc}")
+            box.set_class(True, "-shown")
+        now = minutes_since(start, self.app.ctx.clock()) if start is not None else None
+        self.query_one("#now-line", Static).update(
+            f"now: {now:.1f} min from steam on" if now is not None else "now: set Steam on")
+        if proc is None:
+            self.query_one(ResultsPanel).show_message("Choose the filed process (Tab to the list, Enter).")
+            return
+        try:
+            built = build_case(proc.process, self.entry, now)
+        except CaseError as exc:
+            per = self.show_field_errors(exc)
+            _, rest = field_messages(exc)
+            self.query_one(ResultsPanel).show_error(rest or list(per.values()))
+            return
+        self.show_field_errors(None)
+        self._run(request, built, float(proc.process["process_temperature_C"]), time.perf_counter())
+
+    @work(thread=True, exclusive=True, group="evaluate")
+    def _run(self, request: int, built, process_temperature_C: float, started: float) -> None:
+        from deviation.evaluate import evaluate_case
+
+        try:
+            ev = evaluate_case(built.loaded)
+            error = None
+        except DeviationError as exc:
+            ev, error = None, str(exc)
+        if get_current_worker().is_cancelled:
+            return
+        self.app.call_from_thread(self._show, request, built, ev, error, process_temperature_C, started)
+
+    def _show(self, request: int, built, ev, error, process_temperature_C: float, started: float) -> None:
+        if request != self._request:
+            return  # a newer entry is being evaluated
+        results = self.query_one(ResultsPanel)
+        if ev is None:
+            results.show_error((error or "").splitlines())
+            return
+        from_log = built.loaded.retort_log_text is not None
+        if from_log:
+            F_now, at = ev.delivered_F_min, None
+        else:
+            F_now, at = so_far(ev, built.now_min), built.now_min
+        results.show(FloorFigures(ev, F_now, at, from_log, built.low_running))
+        self.query_one(GuidancePanel).show(ev)
+        self.query_one(CyclePlots).show(ev, now_min=None if from_log else built.now_min,
+                                        process_temperature_C=process_temperature_C)
+        self.last_refresh_s = time.perf_counter() - started

@@ -1,0 +1,104 @@
+"""One record: its state, hold and disposition, what the actor may do now, and its timeline."""
+
+from __future__ import annotations
+
+from rich.console import Group
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.screen import Screen
+from textual.widgets import Footer, Static
+
+from deviation import roles
+from deviation.errors import DeviationError
+from deviation.tui.screens.actions import run_record_action
+from deviation.tui.screens.floor import StatusLine
+from deviation.tui.widgets.results import disposition_text
+from deviation.tui.widgets.timeline import Timeline
+
+
+def record_header(view, actor: str, role: str) -> Group:
+    ev = view.evaluation or {}
+    g = ev.get("guidance") or {}
+    lines = [
+        Text.assemble(("Record ", "bold"), (view.id, "bold"), f"  state {view.state}"),
+        Text(f"lot {view.lot} · retort {view.retort_id} · process {view.process_id}"
+             + (f" v{view.process_version}" if view.process_version else "")),
+    ]
+    if ev:
+        F = ev.get("delivered_F_min")
+        lines.append(Text.assemble("guidance ", disposition_text(g.get("disposition")),
+                                   f" · F0 {F:.2f} of {ev.get('target_F_min'):g} min" if F is not None else ""))
+        if not view.evaluation_current:
+            lines.append(Text("! the latest evaluation is of an earlier snapshot: evaluate again", style="yellow"))
+    if view.hold:
+        h = view.hold
+        txt = f"hold placed by {h.get('placed_by')}: {h.get('reason')}"
+        if not h.get("held"):
+            txt += f" · released by {h.get('released_by')}: {h.get('release_reason')}"
+        lines.append(Text(("⏸ " if h.get("held") else "▶ ") + txt))
+    if view.disposition:
+        d = view.disposition
+        lines.append(Text(f"⚖ disposition by {d['by']}: {d['decision']}: {d['reason']}"
+                          + (f" (result: {d['result']})" if d.get("result") else ""), style="bold"))
+    allowed = roles.allowed_actions(role, [e.kind for e in view.events])
+    lines.append(Text(f"{actor} ({role}) may now: {', '.join(allowed) or 'read only'}", style="dim"))
+    return Group(*lines)
+
+
+class RecordScreen(Screen):
+    """A record and its event timeline."""
+
+    TITLE_TEXT = "Record"
+    BINDINGS = [
+        Binding("escape", "back", "Back"),
+        Binding("h", "hold", "Hold"),
+        Binding("r", "release", "Release"),
+        Binding("d", "decide", "Decide"),
+        Binding("n", "note", "Note"),
+        Binding("y", "audit", "Replay in audit"),
+    ]
+
+    def __init__(self, record_id: str) -> None:
+        super().__init__()
+        self.record_id = record_id
+
+    def compose(self) -> ComposeResult:
+        yield StatusLine(id="status")
+        yield Static("", id="record-header")
+        yield Timeline(id="timeline")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.reload()
+
+    def reload(self) -> None:
+        ctx = self.app.ctx
+        self.query_one(StatusLine).update(
+            f"deviation · Record {self.record_id} · {ctx.actor} ({ctx.role}) · store {ctx.store_name}")
+        try:
+            view = ctx.store.record(self.record_id)
+        except DeviationError as exc:
+            self.notify(str(exc), severity="error")
+            return
+        self.view = view
+        self.query_one("#record-header", Static).update(record_header(view, ctx.actor, ctx.role))
+        self.query_one(Timeline).show(view.events)
+
+    def action_back(self) -> None:
+        self.app.pop_screen()
+
+    def action_hold(self) -> None:
+        run_record_action(self, self.record_id, "place-hold", self.reload)
+
+    def action_release(self) -> None:
+        run_record_action(self, self.record_id, "release-hold", self.reload)
+
+    def action_decide(self) -> None:
+        run_record_action(self, self.record_id, "decide", self.reload)
+
+    def action_note(self) -> None:
+        run_record_action(self, self.record_id, "note", self.reload)
+
+    def action_audit(self) -> None:
+        self.app.open_audit(self.record_id)
