@@ -23,11 +23,14 @@ def register(subparsers) -> None:
         description="Write the evaluation report of a stored record (by id) or of a case file (.toml). "
                     "Guidance only: the process authority decides; local regulations govern.",
     )
-    p.add_argument("target", metavar="ID|CASE", help="record id in the store, or a case file ending in .toml")
+    p.add_argument("targets", metavar="ID|CASE", nargs="+",
+                   help="record id in the store, or a case file ending in .toml; with several, -o is a "
+                        "folder and each report is written there as <name>.<format>")
     p.add_argument("--format", "-f", choices=("html", "pdf", "md"), default=None,
                    help="output format (default: from the -o suffix)")
     p.add_argument("-o", "--output", required=True, metavar="FILE",
-                   help="file to write ('-' writes HTML or Markdown to standard output)")
+                   help="file to write ('-' writes HTML or Markdown to standard output); a folder with "
+                        "several targets")
     p.add_argument("--db", default=None, help="record store: SQLite path or SQLAlchemy URL")
     p.add_argument("--rules", action="append", metavar="FILE_OR_DIR",
                    help="a plant rule file or folder laid over the default rules (repeatable)")
@@ -102,7 +105,24 @@ def _evaluate_options(args) -> dict:
 
 
 def run_report(args) -> int:
-    """Handler of ``deviation report``: returns the exit code (errors raise DeviationError)."""
+    """Handler of ``deviation report``: one report, or one per target into a folder."""
+    if len(args.targets) == 1 and not Path(args.output).is_dir():
+        args.target = args.targets[0]
+        return _run_one(args)
+    if not args.format:
+        raise DeviationError("with several targets or an output folder, give --format html, pdf or md")
+    folder = Path(args.output)
+    folder.mkdir(parents=True, exist_ok=True)
+    for target in args.targets:
+        one = argparse.Namespace(**{**vars(args), "target": target,
+                                    "output": str(folder / f"{Path(target).stem}.{args.format}")})
+        _run_one(one)
+        print(f"wrote {one.output}")
+    return 0
+
+
+def _run_one(args) -> int:
+    """One report: returns the exit code (errors raise DeviationError)."""
     from deviation import report
     from deviation.case import load_case
     from deviation.evaluate import evaluate_case

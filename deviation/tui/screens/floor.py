@@ -181,6 +181,8 @@ class FloorScreen(Screen):
         name = event.input.id
         if self._restoring or name not in {f for f, _, _ in FORM}:
             return
+        if getattr(self.entry, name) == event.value:
+            return  # set from the draft or cleared by the screen itself: nothing new typed
         self.entry = replace(self.entry, **{name: event.value})
         if name == "cycle_start":
             self.entry = replace(self.entry, cycle_start_iso=None)
