@@ -217,3 +217,36 @@ def test_event_outside_the_cycle_is_a_case_error():
         evaluate_case(replace(_base, case=parse_case(data)))
     assert info.value.message == ("deviation.events[0]: temperature-low event from 500 to 510 min lies outside "
                                   "the record (0 to 83 min); expected an interval within the record")
+
+
+_SEVERITY = {"no-deviation": 0, "covered-by-alternate": 1, "evaluate": 2, "reprocess": 3,
+             "reprocess-or-destroy": 4}
+
+
+@settings(max_examples=40, deadline=None)
+@given(hold=st.floats(119, 124), at=st.floats(0, 90), length=st.floats(0.5, 40), lower=st.floats(0.1, 30),
+       hold_end=st.floats(20, 60))
+def test_lowering_the_retort_never_makes_the_disposition_milder(hold, at, length, lower, hold_end):
+    """Issue 4 property: lower the retort anywhere, by any amount: the disposition is never milder."""
+    t = np.arange(0.0, 90.0, 0.5)
+    T = np.interp(t, [0, 8, hold_end, hold_end + 1, 90], [30, hold, hold, 25, 25])
+    lowered = np.where((t >= at) & (t <= at + length), T - lower, T)
+    a = evaluate_case(with_log(_base, t, T), what_if=False)
+    b = evaluate_case(with_log(_base, t, lowered), what_if=False)
+    assert _SEVERITY[b.guidance["disposition"]] >= _SEVERITY[a.guidance["disposition"]]
+
+
+_chili = load_case(DEMO / "chili_alternate_process.toml")
+
+
+@settings(max_examples=30, deadline=None)
+@given(setpoint=st.floats(117.5, 122.0), at=st.floats(0, 130), length=st.floats(0.5, 40),
+       lower=st.floats(0.1, 30))
+def test_lowering_never_milder_with_a_filed_alternate(setpoint, at, length, lower):
+    """The same property on a process with a filed alternate (118.3 °C for 96 min)."""
+    t = np.arange(0.0, 150.0, 0.5)
+    T = np.interp(t, [0, 10, 112, 113, 150], [30, setpoint, setpoint, 25, 25])
+    lowered = np.where((t >= at) & (t <= at + length), T - lower, T)
+    a = evaluate_case(with_log(_chili, t, T), what_if=False)
+    b = evaluate_case(with_log(_chili, t, lowered), what_if=False)
+    assert _SEVERITY[b.guidance["disposition"]] >= _SEVERITY[a.guidance["disposition"]]

@@ -11,6 +11,8 @@ CORE_MODULES = [
     "deviation.heating.conduction",
     "deviation.heating.heating_curve",
     "deviation.heating.superposition",
+    "deviation.heating.finite_difference",
+    "deviation.uncertainty",
     "deviation.lethality",
     "deviation.spoilage",
 ]
