@@ -104,10 +104,10 @@ def _schema(args) -> int:
 def _resolver(args):
     if not getattr(args, "db", None):
         return None
-    from deviation.store import open_store  # noqa: PLC0415
+    from deviation import library
+    from deviation.store import open_store
 
-    store = open_store(args.db)
-    return store.resolve_process_ref
+    return library.resolver(open_store(args.db))
 
 
 @command("evaluate")

@@ -114,9 +114,15 @@ def _load(args, store):
     from deviation.case import load_case
     from deviation.evaluate import check_record
 
-    loaded = load_case(args.case, process_resolver=store.resolve_process_ref)
+    from deviation import library
+
+    resolve = library.resolver(store)
+    loaded = load_case(args.case, process_resolver=resolve)
     check_record(loaded)
-    return loaded
+    snapshot = loaded.snapshot()
+    if resolve.last is not None:  # keep the (id, version) of the filed process it came from
+        snapshot["process_ref"] = resolve.last.to_dict()
+    return loaded, snapshot, resolve.last
 
 
 def _evaluate_into(store, record_id: str, snapshot: dict, snapshot_seq: int, args, actor: str, role: str):
@@ -132,13 +138,14 @@ def _cmd_new(args) -> int:
     actor, role = _actor(args), _role(args)
     role = roles.check_role(actor, role, "enter")
     store = _store(args)
-    loaded = _load(args, store)
+    loaded, snapshot, ref = _load(args, store)
     dev, proc = loaded.case.deviation, loaded.case.process
-    rid = store.create_record(loaded.snapshot(), actor=actor, role=role, lot=dev.lot,
-                              retort_id=dev.retort_id, process_id=proc.id,
-                              process_version=args.process_version)
+    version = args.process_version or (str(ref.process_version) if ref else None)
+    rid = store.create_record(snapshot, actor=actor, role=role, lot=dev.lot,
+                              retort_id=dev.retort_id, process_id=ref.process_id if ref else proc.id,
+                              process_version=version)
     try:
-        ev = _evaluate_into(store, rid, loaded.snapshot(), 1, args, actor, role)
+        ev = _evaluate_into(store, rid, snapshot, 1, args, actor, role)
     except DeviationError as exc:
         # The deviation is on record even when the engine cannot evaluate it.
         if args.json:
@@ -171,9 +178,9 @@ def _cmd_amend(args) -> int:
     actor = _actor(args)
     role = roles.check_role(actor, _role(args), "amend")
     store = _store(args)
-    loaded = _load(args, store)
-    event = store.amend(args.id, loaded.snapshot(), reason=args.reason, actor=actor, role=role)
-    ev = _evaluate_into(store, args.id, loaded.snapshot(), event.seq, args, actor, role)
+    _, snapshot, _ = _load(args, store)
+    event = store.amend(args.id, snapshot, reason=args.reason, actor=actor, role=role)
+    ev = _evaluate_into(store, args.id, snapshot, event.seq, args, actor, role)
     view = store.record(args.id)
     if args.json:
         _print_json({"id": args.id, "state": view.state, "amended_seq": event.seq,

@@ -135,7 +135,9 @@ def _run_one(args) -> int:
     if _is_case_file(args.target):
         resolver = None
         if args.db:
-            resolver = _open_store(args.db).resolve_process_ref
+            from deviation import library
+
+            resolver = library.resolver(_open_store(args.db))
         loaded = load_case(args.target, process_resolver=resolver)
         ev = evaluate_case(loaded, **_evaluate_options(args), rule_set=rule_set)
         events = record_id = record_hash = None

@@ -437,6 +437,10 @@ def _implausible_flags(case: Case, profile: prof.RetortProfile) -> list[FlagOut]
     return out
 
 
+# Deviations of the scheduled process that a filed alternate (another temperature and time) can cover.
+_ALTERNATE_CAN_COVER = {"temperature-low", "short-hold", "process-temperature-not-reached", "long-come-up"}
+
+
 def _alternates(case: Case, profile: prof.RetortProfile, come_up_min: float | None) -> list[dict[str, float]]:
     """Filed alternate processes the recorded cycle satisfies (held continuously at or above)."""
     process, dev = case.process, case.deviation
@@ -542,7 +546,10 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     cf_flags, cf_rows = _critical_factor_flags(case)
     flags += cf_flags
     flags += _implausible_flags(case, profile)
-    alternates = _alternates(case, profile, analysis.come_up_min)
+    # An alternate matters only when the scheduled process itself was missed on a time or
+    # temperature factor; a cycle that met the scheduled process needs no alternate.
+    missed = {f.code for f in analysis.flags} & _ALTERNATE_CAN_COVER
+    alternates = _alternates(case, profile, analysis.come_up_min) if missed else []
     if alternates:
         a = alternates[0]
         flags.append(_flag("alternate-process-met",

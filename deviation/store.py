@@ -603,6 +603,13 @@ class Store:
                               source=self.name)
         state = _sqlstate(exc) or ""
         if self.dialect == "postgresql":
+            fatal = reason.partition("FATAL:")[2].strip()
+            if fatal:
+                if "does not exist" in fatal and "database" in fatal:
+                    state = "3D000"
+                elif any(w in fatal for w in ("authentication failed", "pg_hba.conf", "password", "role")):
+                    state = "28000"
+                reason = fatal
             if state == "55P03":
                 return StoreError(f"the store stayed locked by another writer for over "
                                   f"{_BUSY_TIMEOUT_S:.0f} s ({reason}); try again", source=self.name)
@@ -829,6 +836,9 @@ class Store:
         eid = _checked_event_id(event_id)
         # Made once, outside the transaction: a retry writes the same record, not a new one.
         created = {"id": new_record_id()}
+        # The snapshot (log contents and all) is serialised before the transaction; the payload
+        # text is exactly canonical_json({"record": header, "snapshot": snapshot}).
+        snapshot_json = canonical_json(snapshot)
 
         def write(conn: sa.Connection) -> str:
             nonlocal check_first
@@ -846,7 +856,7 @@ class Store:
             when = utc_now()
             header = {"id": rid, "lot": lot, "retort_id": retort_id, "process_id": process_id,
                       "process_version": process_version, "created_utc": when}
-            payload_json = canonical_json({"record": header, "snapshot": snapshot})
+            payload_json = '{"record":' + canonical_json(header) + ',"snapshot":' + snapshot_json + "}"
             conn.execute(records_t.insert().values(**header))
             self._insert_event(conn, record_id=rid, kind="entered", utc=when, actor=actor,
                                role=role, payload_json=payload_json, event_id=eid)
@@ -870,6 +880,10 @@ class Store:
         payload = dict(payload)
         check_first = event_id is not None
         eid = _checked_event_id(event_id)
+        # Serialised before the transaction (a large evaluation takes a while), unless the
+        # snapshot it refers to is only known inside it.
+        ready_json = (canonical_json(payload) if kind != "evaluated" or payload.get("snapshot_seq") is not None
+                      else None)
 
         def write(conn: sa.Connection) -> Event:
             nonlocal check_first
@@ -901,7 +915,8 @@ class Store:
                         f"evaluation is of snapshot event {asked} but the record was amended since "
                         f"(current snapshot event {latest}); evaluate again")
             row = self._insert_event(conn, record_id=record_id, kind=kind, utc=utc_now(),
-                                     actor=actor, role=role, payload_json=canonical_json(payload),
+                                     actor=actor, role=role,
+                                     payload_json=ready_json if ready_json is not None else canonical_json(payload),
                                      event_id=eid)
             return _event_from_row(row, payload)
 
@@ -1222,7 +1237,8 @@ class Store:
                     events_added += 1
             return ImportResult(added, events_added, unchanged, ids)
 
-        return self._retrying(write)
+        # Idempotent: a retry after a committed import finds every event in place (unchanged).
+        return self._retrying(write, idempotent=True)
 
     # -- drafts (mutable, not records) ------------------------------------------------------
 
@@ -1233,7 +1249,7 @@ class Store:
             conn.execute(drafts_t.delete().where(drafts_t.c.key == key))
             conn.execute(drafts_t.insert().values(key=key, payload=text, saved_utc=utc_now()))
 
-        self._retrying(write)
+        self._retrying(write, idempotent=True)
 
     def load_draft(self, key: str) -> dict | None:
         with self._read() as conn:
@@ -1241,7 +1257,8 @@ class Store:
         return json.loads(text) if text is not None else None
 
     def delete_draft(self, key: str) -> None:
-        self._retrying(lambda conn: conn.execute(drafts_t.delete().where(drafts_t.c.key == key)))
+        self._retrying(lambda conn: conn.execute(drafts_t.delete().where(drafts_t.c.key == key)),
+                       idempotent=True)
 
     def draft_keys(self) -> list[str]:
         with self._read() as conn:
@@ -1281,6 +1298,8 @@ def _sqlstate(exc: BaseException | None) -> str | None:
 # (starting up or shutting down), and the connection-exception class 08.
 _GONE_STATES = ("57P01", "57P02", "57P03")
 _CONFLICT_STATES = ("40001", "40P01", "23505")
+_GONE_WORDS = ("starting up", "shutting down", "recovery mode", "not yet accepting", "terminating connection",
+               "too many clients", "remaining connection slots")
 
 
 def _classify(exc: BaseException | None) -> str | None:
@@ -1294,8 +1313,12 @@ def _classify(exc: BaseException | None) -> str | None:
     if module.startswith("psycopg"):
         if exc.connection_invalidated or state in _GONE_STATES or (state or "").startswith("08"):
             return "disconnect"
-        # psycopg's own errors without a server SQLSTATE: a refused or broken connection.
+        # psycopg's own errors without a server SQLSTATE: a refused or broken connection, or a
+        # server that answered the connection attempt with a FATAL message.
         if state is None and isinstance(exc, sa_exc.OperationalError):
+            fatal = str(orig).partition("FATAL:")[2].lower()
+            if fatal and not any(w in fatal for w in _GONE_WORDS):
+                return None  # a wrong database, user or password: retrying will not help
             return "disconnect"
         if state in _CONFLICT_STATES:
             return "conflict"

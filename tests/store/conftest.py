@@ -13,7 +13,9 @@ from __future__ import annotations
 
 import os
 import shutil
+import socket
 import sqlite3
+import tempfile
 import subprocess
 import sys
 import uuid
@@ -207,3 +209,49 @@ def _dispose_pg_admin():
     engine = _PG_STATE.get("engine")
     if engine is not None:
         engine.dispose()
+
+
+SCRIPT = REPO / ".ci" / "postgres.sh"
+
+
+def _free_loopback_port() -> int:
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+class Cluster:
+    def __init__(self) -> None:
+        self.dir = tempfile.mkdtemp(prefix="deviation-pgf.", dir="/tmp")  # short: socket path
+        self.port = _free_loopback_port()
+        self.url = self.start()
+
+    def _run(self, *args: str) -> str:
+        out = subprocess.run(["bash", str(SCRIPT), *args], capture_output=True, text=True, timeout=120)
+        assert out.returncode == 0, out.stderr
+        return out.stdout.strip()
+
+    def start(self) -> str:
+        return self._run("start", self.dir, str(self.port))
+
+    def stop(self, mode: str = "fast") -> None:
+        self._run("stop", self.dir, mode)
+
+    def remove(self) -> None:
+        try:
+            self.stop("immediate")
+        finally:
+            shutil.rmtree(self.dir, ignore_errors=True)
+
+
+@pytest.fixture
+def pg_cluster():
+    """A private throw-away cluster (own data directory, free loopback port), for tests that
+    stop and start the server."""
+    if not os.environ.get("DEVIATION_TEST_PG_URL"):
+        _skip_or_fail("DEVIATION_TEST_PG_URL is not set (.ci/run sets it; see .ci/postgres.sh)")
+    if pg_server_bindir() is None:
+        _skip_or_fail("the PostgreSQL server programs are not installed (.ci/postgres.sh install)")
+    c = Cluster()
+    yield c
+    c.remove()

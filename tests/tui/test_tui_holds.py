@@ -12,6 +12,7 @@ from deviation.store import open_store
 from deviation.tui.app import build_app
 from deviation.tui.screens.holds import HoldsScreen
 from deviation.tui.screens.record import RecordScreen
+from deviation.tui.widgets.results import plain
 from deviation.tui.widgets.timeline import Timeline
 
 
@@ -50,6 +51,10 @@ async def enter_drop(pilot, lot: str) -> str:
     await pilot.press("ctrl+s")
     await pilot.pause()
     return s.saved_record_id
+
+
+def text_of(widget) -> str:
+    return plain(widget.content, 120)
 
 
 def board_lots(screen) -> list[str]:
@@ -96,7 +101,7 @@ async def test_saved_entry_is_held_by_a_supervisor(db):
         await pilot.pause()
         await pilot.press(*"again", "enter")
         await pilot.pause()
-        assert "it is already held" in str(app.screen.query_one("#dialog-error").render())
+        assert "it is already held" in text_of(app.screen.query_one("#dialog-error"))
         await pilot.press("escape")
         await pilot.pause()
     view = open_store(db).record(rid)
@@ -121,7 +126,7 @@ async def test_record_timeline_and_disposition(db):
         assert isinstance(rec, RecordScreen)
         events = open_store(db).events(rec.record_id)
         assert rec.query_one(Timeline).row_count == len(events)
-        assert "may now: decide, note" in str(rec.query_one("#record-header").render())
+        assert "may now: evaluate, decide, note" in text_of(rec.query_one("#record-header"))
         await pilot.press("d")
         await pilot.pause()
         dialog = app.screen
@@ -131,7 +136,7 @@ async def test_record_timeline_and_disposition(db):
         await pilot.press("ctrl+s")
         await pilot.pause()
         assert rec.query_one(Timeline).row_count == len(events) + 1
-        assert "⚖ disposition by pat: release" in str(rec.query_one("#record-header").render())
+        assert "⚖ disposition by pat: release" in text_of(rec.query_one("#record-header"))
         await pilot.press("escape")
         await pilot.pause()
         assert "CHL-261104-A" not in board_lots(board)  # decided: no longer open
@@ -150,10 +155,10 @@ async def test_board_sorts_and_counts(db):
         assert board.sort_key == "disposition"
         first = str(board.query_one("#board", DataTable).get_row_at(0)[1])
         assert "reprocess" in first  # most severe first
-        await pilot.press("s", "s", "s")  # disposition -> state -> lot -> ... lot
+        await pilot.press("s", "s")  # disposition -> state -> lot
         await pilot.pause()
         assert board.sort_key == "lot"
         lots = board_lots(board)
         assert lots == sorted(lots)
-        summary = str(board.query_one("#board-summary").render())
+        summary = text_of(board.query_one("#board-summary"))
         assert summary.startswith(f"{len(lots)} of {len(lots)} open records · sorted by lot")

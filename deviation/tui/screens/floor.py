@@ -147,10 +147,15 @@ class FloorScreen(Screen):
         ctx = self.app.ctx
         try:
             draft = ctx.store.load_draft(ctx.draft_key)
+            log = ctx.store.load_draft(ctx.draft_key + ".log") if draft else None
         except DeviationError as exc:
             self.notify(str(exc), severity="error")
-            draft = None
+            draft = log = None
         entry = FloorEntry.from_draft(draft)
+        if log and draft and log.get("source") == draft.get("retort_log_source"):
+            entry = replace(entry, retort_log_text=log.get("text"))
+        elif entry.retort_log_source:
+            entry = replace(entry, retort_log_source=None)
         if entry.process_key not in self.processes:
             entry = replace(entry, process_key=None)
         self._restoring = True
@@ -169,9 +174,16 @@ class FloorScreen(Screen):
         self.evaluate()
 
     def save_draft(self) -> None:
+        """Keep the entry in the store; the (large) retort log only when it changes."""
         ctx = self.app.ctx
+        draft = self.entry.to_draft()
+        text = draft.pop("retort_log_text", None)
         try:
-            ctx.store.save_draft(ctx.draft_key, self.entry.to_draft())
+            if text is not None and getattr(self, "_draft_log_source", None) != self.entry.retort_log_source:
+                ctx.store.save_draft(ctx.draft_key + ".log", {"source": self.entry.retort_log_source,
+                                                             "text": text})
+                self._draft_log_source = self.entry.retort_log_source
+            ctx.store.save_draft(ctx.draft_key, draft)
         except DeviationError as exc:
             self.notify(f"draft not kept: {exc}", severity="error")
 
@@ -211,8 +223,20 @@ class FloorScreen(Screen):
 
     # -- time --------------------------------------------------------------------------------
 
+    def sync_fields(self) -> None:
+        """Take the fields as they stand on screen (a change message may still be queued)."""
+        if self._restoring:
+            return
+        changed = {name: self.query_one(f"#{name}", Input).value for name, _, _ in FORM
+                   if self.query_one(f"#{name}", Input).value != getattr(self.entry, name)}
+        if changed:
+            if "cycle_start" in changed:
+                changed["cycle_start_iso"] = None
+            self.entry = replace(self.entry, **changed)
+
     def cycle_start(self):
         """The cycle start as a date-time (None when not set); raises on a bad value."""
+        self.sync_fields()
         text = self.entry.cycle_start.strip()
         if not text:
             return None
@@ -246,9 +270,9 @@ class FloorScreen(Screen):
         self.entry = with_reading(self.entry, reading)
         self._entry_error(None)
         self.query_one("#reading", Input).value = ""
-        self.save_draft()
+        self.evaluate()  # first: the worker computes while the draft is written
         self.show_readings()
-        self.evaluate()
+        self.save_draft()
 
     def _now_or_error(self) -> float | None:
         try:
@@ -309,6 +333,8 @@ class FloorScreen(Screen):
         finally:
             self._restoring = False
         self.app.ctx.store.delete_draft(self.app.ctx.draft_key)
+        self.app.ctx.store.delete_draft(self.app.ctx.draft_key + ".log")
+        self._draft_log_source = None
         self.show_readings()
         self.evaluate()
 
@@ -337,9 +363,9 @@ class FloorScreen(Screen):
     def import_log_text(self, text: str, source: str) -> None:
         """Attach a retort log (used by the import dialog and by a watch)."""
         self.entry = replace(self.entry, retort_log_text=text, retort_log_source=source)
-        self.save_draft()
-        self.show_readings()
         self.evaluate()
+        self.show_readings()
+        self.save_draft()
 
     def action_save(self) -> None:
         from deviation import roles
@@ -415,7 +441,7 @@ class FloorScreen(Screen):
             box.set_class(True, "-shown")
         now = minutes_since(start, self.app.ctx.clock()) if start is not None else None
         self.query_one("#now-line", Static).update(
-            f"now: {now:.1f} min from steam on" if now is not None else "now: set Steam on")
+            f"now: {now:.1f} min from steam on" if now is not None else "now: set Steam on", layout=False)
         if proc is None:
             self.query_one(ResultsPanel).show_message("Choose the filed process (Tab to the list, Enter).")
             return
@@ -455,7 +481,14 @@ class FloorScreen(Screen):
         else:
             F_now, at = so_far(ev, built.now_min), built.now_min
         results.show(FloorFigures(ev, F_now, at, from_log, built.low_running))
-        self.query_one(GuidancePanel).show(ev)
-        self.query_one(CyclePlots).show(ev, now_min=None if from_log else built.now_min,
-                                        process_temperature_C=process_temperature_C)
         self.last_refresh_s = time.perf_counter() - started
+
+        def rest() -> None:
+            # A frame after the figures: the numbers paint first, the text and curves follow.
+            if request != self._request:
+                return
+            self.query_one(GuidancePanel).show(ev)
+            self.query_one(CyclePlots).show(ev, now_min=None if from_log else built.now_min,
+                                            process_temperature_C=process_temperature_C)
+
+        self.set_timer(1 / 30, rest)

@@ -12,34 +12,37 @@ from textual.widgets import Static
 from deviation.evaluate import CAUTION
 
 HELP = f"""\
-deviation · terminal UI                                      Esc or F1 closes this help
+deviation · terminal UI                          Esc or F1 closes this help
 
 Screens (function keys work everywhere)
   F2  Floor entry   the operator enters a deviation while the cycle runs
-  F3  Holds board   the supervisor holds and releases; the process authority decides
-  F4  Audit         replay a record, compare stored and recomputed, verify the chains
-  F9  Who is at the terminal (name and role; recorded, not authenticated)
+  F3  Holds board   supervisor holds/releases; process authority decides
+  F4  Audit         replay, stored against recomputed, verify the chains
+  F9  Who is at the terminal (name, role: recorded, not authenticated)
   Ctrl+Q quit (the floor entry is kept as a draft in the store)
 
 Floor entry
   Tab / Shift+Tab  move between fields; Enter in "Reading" = low now
   Ctrl+L  temperature low now (the reading typed in "Reading °C")
   Ctrl+B  back at process temperature now
-  Ctrl+T  a typed entry: "At" (minutes from steam on, or HH:MM) and "Reading °C"
+  Ctrl+T  typed entry: "At" (min from steam on, or HH:MM) + "Reading"
   Ctrl+O  import a retort log (CSV)      Ctrl+R  undo the last reading
   Ctrl+S  save the record (operator)     Ctrl+N  new entry
   Ctrl+G  curves or guidance (narrow terminals show one at a time)
-  "now" is the clock minus "Steam on". A low interval still open counts until now.
+  "now" is the clock minus "Steam on"; an open low interval counts
+  until now.
 
 Holds board and record
-  Enter open · H hold · R release · D disposition · N note · S sort · A all/open · / filter
+  Enter open · H hold · R release · D disposition · N note
+  S sort · A all or open only · / filter
   Esc back from a record; Y replays the record in the audit screen
 
 Audit
   Enter replay · V verify every hash chain · X export the report
 
-Symbols: ✓ meets / reproduced  ✗ below / differs  ! hold  ⚑ flag  ▼ low  ▲ back
-         ○ entered  ◐ evaluated  ⏸ held  ▶ released  ⚖ decided
+Symbols: ✓ meets / reproduced  ✗ below / differs  ! hold  ⚑ flag
+         ▼ low  ▲ back  ○ entered  ◐ evaluated  ⏸ held  ▶ released
+         ⚖ decided
 
 {CAUTION}
 """

@@ -14,7 +14,7 @@ from deviation.evaluate import Evaluation
 
 # At most this many points per series: a terminal column holds two braille dots; more points
 # only cost time (a 2-hour, 1-second record has 7,200).
-_MAX_POINTS = 400
+_MAX_POINTS = 240
 
 
 def _thin(*series: list[float]) -> list[np.ndarray]:
