@@ -35,7 +35,7 @@ def text_of(widget) -> str:
 async def settle(pilot) -> None:
     await pilot.pause()
     await pilot.app.workers.wait_for_complete()
-    await pilot.pause()
+    await pilot.pause(0.1)  # the guidance and curves follow the figures by a frame
 
 
 async def save_entry(pilot) -> str:

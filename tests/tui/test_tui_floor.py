@@ -50,7 +50,7 @@ async def settle(pilot) -> None:
     """Let the evaluation worker finish and its results reach the widgets."""
     await pilot.pause()
     await pilot.app.workers.wait_for_complete()
-    await pilot.pause()
+    await pilot.pause(0.1)  # the guidance and curves follow the figures by a frame
 
 
 async def fill(pilot, *, lot="CHL-TEST-1", retort="R3", lot_size="4800", initial="45", start="08:00",

@@ -31,7 +31,7 @@ def clock():
 async def settle(pilot) -> None:
     await pilot.pause()
     await pilot.app.workers.wait_for_complete()
-    await pilot.pause()
+    await pilot.pause(0.1)  # the guidance and curves follow the figures by a frame
 
 
 async def enter_drop(pilot, lot: str) -> str:

@@ -43,7 +43,7 @@ async def enter_drop(pilot) -> None:
         await pilot.press("ctrl+t")
     await pilot.pause()
     await pilot.app.workers.wait_for_complete()
-    await pilot.pause()
+    await pilot.pause(0.1)  # the guidance and curves follow the figures by a frame
     s.query_one("#lot", Input).focus()
     await pilot.pause()
 
@@ -57,6 +57,7 @@ def test_floor_entry_curves_80x24(snap_compare, app_factory):
     async def setup(pilot):
         await enter_drop(pilot)
         await pilot.press("ctrl+g")  # curves instead of guidance on a narrow terminal
+        await pilot.pause(0.1)
 
     assert snap_compare(app_factory(), terminal_size=(80, 24), run_before=setup)
 
