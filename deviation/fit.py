@@ -681,37 +681,7 @@ def read_heat_penetration_csv(path_or_text, *, source: str | None = None) -> Hea
         line_numbers.append(line)
         time_texts.append(time_text)
 
-    if time_name == "time_min":
-        time_min = np.array(times)
-        negative = np.flatnonzero(time_min < 0.0)
-        if negative.size:
-            i = int(negative[0])
-            raise RecordError(
-                f"line {line_numbers[i]}, column time_min: time {time_texts[i]} min is negative; "
-                "expected minutes from steam on (0 or more)",
-                source=src,
-            )
-        unit_text = " min"
-    else:
-        time_min = _profile._timestamps_to_minutes(stamps, line_numbers, time_texts, src)
-        unit_text = ""
-    time_min = time_min - time_min[0]
-    step = np.diff(time_min)
-    bad = np.flatnonzero(step <= 0.0)
-    if bad.size:
-        i = int(bad[0]) + 1
-        if step[i - 1] == 0.0:
-            raise RecordError(
-                f"duplicate time {time_texts[i]}{unit_text} at line {line_numbers[i]} (also at "
-                f"line {line_numbers[i - 1]}); expected each time once",
-                source=src,
-            )
-        raise RecordError(
-            f"line {line_numbers[i]}, column {time_name}: time {time_texts[i]}{unit_text} is "
-            f"earlier than {time_texts[i - 1]}{unit_text} at line {line_numbers[i - 1]}; "
-            "expected times increasing strictly",
-            source=src,
-        )
+    time_min = _profile.checked_times(time_name, times, stamps, line_numbers, time_texts, src)
 
     retort_C = _column_to_celsius(np.array(retort), retort_name, retort_unit, line_numbers, src,
                                   _WHAT)

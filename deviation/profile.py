@@ -388,6 +388,48 @@ def _timestamps_to_minutes(
     return np.array([(stamp - start).total_seconds() / 60.0 for stamp in stamps])
 
 
+def checked_times(time_name: str, times: list[float], stamps: list, line_numbers: list[int],
+                  time_texts: list[str], source: str) -> np.ndarray:
+    """Minutes from the first row [min], checked: not negative, strictly increasing.
+
+    ``times`` holds parsed ``time_min`` values, ``stamps`` parsed ISO timestamps (one of the two
+    is used, by ``time_name``). Raises :class:`RecordError` naming the line and the value.
+    """
+    if time_name == "time_min":
+        time_min = np.array(times)
+        negative = np.flatnonzero(time_min < 0.0)
+        if negative.size:
+            i = int(negative[0])
+            raise RecordError(
+                f"line {line_numbers[i]}, column time_min: time {time_texts[i]} min is negative; "
+                "expected minutes from steam on (0 or more)",
+                source=source,
+            )
+        unit_text = " min"
+    else:
+        time_min = _timestamps_to_minutes(stamps, line_numbers, time_texts, source)
+        unit_text = ""
+    # Check the shifted times: they are what the profile keeps.
+    time_min = time_min - time_min[0]
+    step = np.diff(time_min)
+    bad = np.flatnonzero(step <= 0.0)
+    if bad.size:
+        i = int(bad[0]) + 1
+        if step[i - 1] == 0.0:
+            raise RecordError(
+                f"duplicate time {time_texts[i]}{unit_text} at line {line_numbers[i]} "
+                f"(also at line {line_numbers[i - 1]}); expected each time once",
+                source=source,
+            )
+        raise RecordError(
+            f"line {line_numbers[i]}, column {time_name}: time {time_texts[i]}{unit_text} is "
+            f"earlier than {time_texts[i - 1]}{unit_text} at line {line_numbers[i - 1]}; expected "
+            "times increasing strictly",
+            source=source,
+        )
+    return time_min
+
+
 def parse_log_text(
     text: str, *, source: str, sha256: str | None = None, kind: str = "retort"
 ) -> RetortProfile:
@@ -488,39 +530,7 @@ def parse_log_text(
         line_numbers.append(line)
         time_texts.append(time_text)
 
-    # Time: not negative, strictly increasing.
-    if time_name == "time_min":
-        time_min = np.array(times)
-        negative = np.flatnonzero(time_min < 0.0)
-        if negative.size:
-            i = int(negative[0])
-            raise RecordError(
-                f"line {line_numbers[i]}, column time_min: time {time_texts[i]} min is negative; "
-                "expected minutes from steam on (0 or more)",
-                source=source,
-            )
-        unit_text = " min"
-    else:
-        time_min = _timestamps_to_minutes(stamps, line_numbers, time_texts, source)
-        unit_text = ""
-    # Check the shifted times: they are what the profile keeps.
-    time_min = time_min - time_min[0]
-    step = np.diff(time_min)
-    bad = np.flatnonzero(step <= 0.0)
-    if bad.size:
-        i = int(bad[0]) + 1
-        if step[i - 1] == 0.0:
-            raise RecordError(
-                f"duplicate time {time_texts[i]}{unit_text} at line {line_numbers[i]} "
-                f"(also at line {line_numbers[i - 1]}); expected each time once",
-                source=source,
-            )
-        raise RecordError(
-            f"line {line_numbers[i]}, column {time_name}: time {time_texts[i]}{unit_text} is "
-            f"earlier than {time_texts[i - 1]}{unit_text} at line {line_numbers[i - 1]}; expected "
-            "times increasing strictly",
-            source=source,
-        )
+    time_min = checked_times(time_name, times, stamps, line_numbers, time_texts, source)
 
     # Temperature: the right unit, then a plausible value.
     values = np.array(temperatures)
