@@ -18,6 +18,7 @@ from textual.widgets import Button, Input, Label, Select, Static
 
 from deviation.errors import DeviationError
 from deviation.roles import ROLES
+from deviation.tui.follow import FollowStart, open_followed_log
 
 T = TypeVar("T")
 
@@ -190,6 +191,16 @@ class ImportLogDialog(FormDialog[FileChoice]):
         return FileChoice(v["path"])
 
 
+class FollowLogDialog(FormDialog[FollowStart]):
+    """The path of a retort log still being written; checked in place (exists, valid header)."""
+
+    TITLE_TEXT = "◉ Follow a retort log the recorder is still writing (CSV)"
+    FIELDS = (Field("path", "File (rows are read as they are written)", "path/to/retort-log.csv"),)
+
+    def make_result(self, v):
+        return open_followed_log(v["path"])
+
+
 class ExportReportDialog(FormDialog[FileChoice]):
     TITLE_TEXT = "Export the evaluation report (HTML or Markdown by suffix)"
     FIELDS = (Field("path", "File", "report.html"),)
@@ -201,5 +212,5 @@ class ExportReportDialog(FormDialog[FileChoice]):
 
 
 __all__ = ["FormDialog", "HoldDialog", "ReleaseDialog", "DecideDialog", "NoteDialog", "IdentityDialog",
-           "ImportLogDialog", "ExportReportDialog", "HoldRequest", "ReleaseRequest", "Decision",
+           "ImportLogDialog", "FollowLogDialog", "ExportReportDialog", "HoldRequest", "ReleaseRequest", "Decision",
            "NoteText", "Identity", "FileChoice"]

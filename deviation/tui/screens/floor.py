@@ -1,9 +1,14 @@
 """Floor entry: the operator records a deviation while the cycle runs and sees it evaluated.
 
 Keys (shown in the footer): Ctrl+L low now (with the reading typed), Ctrl+B back at process
-temperature now, Ctrl+T a typed time and reading, Ctrl+O import a retort log, Ctrl+R drop the last
-reading, Ctrl+S save the record, Ctrl+N new entry, Ctrl+G curves/guidance (narrow terminals).
+temperature now, Ctrl+T a typed time and reading, Ctrl+O import a retort log, Ctrl+F follow a
+retort log the recorder is still writing (Ctrl+F again stops), Ctrl+R drop the last reading,
+Ctrl+S save the record, Ctrl+N new entry, Ctrl+G curves/guidance (narrow terminals).
 Every change is kept as a draft in the store, restored when the app starts again.
+
+Following a log (:mod:`deviation.tui.follow`) feeds the rows so far through the import path as
+they arrive and raises a toast for each flag the live watch sees; it does not create a record by
+itself: Ctrl+S saves the record with the rows so far, as for any entry.
 """
 
 from __future__ import annotations
@@ -34,7 +39,8 @@ from deviation.tui.entry import (
     with_reading,
     without_last_reading,
 )
-from deviation.tui.screens.dialogs import FileChoice, ImportLogDialog
+from deviation.tui.follow import POLL_S, FollowEvent, FollowSession, FollowStart, run_follow
+from deviation.tui.screens.dialogs import FileChoice, FollowLogDialog, ImportLogDialog
 from deviation.tui.sources import FiledProcess, filed_processes
 from deviation.tui.widgets.guidance import CautionBar, GuidancePanel
 from deviation.tui.widgets.plots import CyclePlots
@@ -72,8 +78,10 @@ class FloorScreen(Screen):
     BINDINGS = [
         Binding("ctrl+l", "low_now", "Low now", priority=True),
         Binding("ctrl+b", "back_now", "Back now", priority=True),
-        Binding("ctrl+t", "typed", "Typed entry", priority=True),
+        Binding("ctrl+t", "typed", "Typed", priority=True),
         Binding("ctrl+o", "import_log", "Import log", priority=True),
+        Binding("ctrl+f", "follow_log", "Follow", priority=True),
+        Binding("ctrl+f", "stop_follow", "Unfollow", priority=True),
         Binding("ctrl+s", "save", "Save", priority=True),
         Binding("ctrl+r", "drop_last", "Undo reading", show=False, priority=True),
         Binding("ctrl+n", "new_entry", "New", show=False, priority=True),
@@ -87,6 +95,9 @@ class FloorScreen(Screen):
         self._request = 0
         self._restoring = False
         self.last_error: str | None = None
+        self.follow: FollowSession | None = None  # the log being followed (or last followed)
+        self._follows = 0
+        self.follow_poll_s = POLL_S
 
     # -- layout ------------------------------------------------------------------------------
 
@@ -117,6 +128,7 @@ class FloorScreen(Screen):
                 with Horizontal(id="floor-lower"):
                     yield GuidancePanel(id="guidance")
                     yield CyclePlots(id="plots")
+        yield Static("", id="follow-status")
         yield CautionBar(id="caution")
         yield Footer()
 
@@ -178,11 +190,13 @@ class FloorScreen(Screen):
         ctx = self.app.ctx
         draft = self.entry.to_draft()
         text = draft.pop("retort_log_text", None)
+        # A followed log grows: keep it again when its length changes, not only its source.
+        log_key = (self.entry.retort_log_source, len(text)) if text is not None else None
         try:
-            if text is not None and getattr(self, "_draft_log_source", None) != self.entry.retort_log_source:
+            if text is not None and getattr(self, "_draft_log_key", None) != log_key:
                 ctx.store.save_draft(ctx.draft_key + ".log", {"source": self.entry.retort_log_source,
                                                              "text": text})
-                self._draft_log_source = self.entry.retort_log_source
+                self._draft_log_key = log_key
             ctx.store.save_draft(ctx.draft_key, draft)
         except DeviationError as exc:
             self.notify(f"draft not kept: {exc}", severity="error")
@@ -216,6 +230,7 @@ class FloorScreen(Screen):
         key = event.value if event.value is not Select.NULL else None
         if key == self.entry.process_key:
             return
+        self.stop_following("the filed process changed; follow again to judge against the new one")
         self.entry = replace(self.entry, process_key=key)
         self.show_product()
         self.save_draft()
@@ -325,6 +340,7 @@ class FloorScreen(Screen):
             self.evaluate()
 
     def action_new_entry(self) -> None:
+        self.stop_following("new entry")
         self.entry = FloorEntry(process_key=self.entry.process_key)
         self._restoring = True
         try:
@@ -334,7 +350,7 @@ class FloorScreen(Screen):
             self._restoring = False
         self.app.ctx.store.delete_draft(self.app.ctx.draft_key)
         self.app.ctx.store.delete_draft(self.app.ctx.draft_key + ".log")
-        self._draft_log_source = None
+        self._draft_log_key = None
         self.show_readings()
         self.evaluate()
 
@@ -349,6 +365,7 @@ class FloorScreen(Screen):
             path = Path(choice.path).expanduser()
             text = _read_text(path, what="retort log", named_in="import")
             parse_log_text(text, source=str(path))  # refuse a bad log before it is kept
+            self.stop_following("another log imported")
             self.entry = replace(self.entry, retort_log_text=text, retort_log_source=str(path))
 
         def done(choice: FileChoice | None) -> None:
@@ -359,6 +376,145 @@ class FloorScreen(Screen):
                 self.evaluate()
 
         self.app.push_screen(ImportLogDialog(apply=read), done)
+
+    # -- following a log the recorder is writing ----------------------------------------------
+
+    @property
+    def following(self) -> bool:
+        return self.follow is not None and self.follow.active
+
+    def check_action(self, action: str, parameters) -> bool | None:
+        # Ctrl+F follows, or stops following: the footer shows the one that applies.
+        if action == "follow_log":
+            return not self.following
+        if action == "stop_follow":
+            return self.following
+        return True
+
+    def action_follow_log(self) -> None:
+        proc = self._process()
+        if proc is None:
+            self._entry_error("choose the filed process first")
+            self.notify("choose the filed process first", title="Not following", severity="error")
+            return
+
+        def done(start: FollowStart | None) -> None:
+            if start is not None:
+                self.start_following(start)
+
+        self.app.push_screen(FollowLogDialog(), done)
+
+    def start_following(self, start: FollowStart) -> None:
+        """Follow the log opened by the dialog (rows so far first, then as they arrive)."""
+        from deviation.case import parse_case
+
+        proc = self._process()
+        if proc is None:
+            start.close()
+            self._entry_error("choose the filed process first")
+            return
+        self.stop_following("another log followed")
+        self.sync_fields()
+        try:
+            # Only the filed process is wanted here: the watch builds its own case around it.
+            process = parse_case({"process": proc.process, "deviation": {
+                "lot": "-", "retort_id": "-", "lot_size_containers": 1, "initial_temperature_C": 20.0}},
+                source=proc.origin).process
+        except DeviationError as exc:
+            start.close()
+            self.notify(f"cannot follow against this filed process: {exc}", title="Not following",
+                        severity="error")
+            return
+        try:
+            initial = float(self.entry.initial_temperature)
+        except ValueError:
+            initial = None  # the watch assumes the filed minimum; the results say the field is missing
+        self._follows += 1
+        session = FollowSession(self._follows, start.path, rows=start.readings)
+        self.follow = session
+        self._entry_error(None)
+        self.show_follow_status()
+        self.refresh_bindings()
+        self.notify(f"following {start.path.name}: {start.readings} rows so far; Ctrl+F stops",
+                    title="◉ Following")
+        self._follow_worker(session, start, process, self.entry.lot.strip(), self.entry.retort.strip(),
+                            initial)
+
+    @work(thread=True, group="follow", exit_on_error=False)
+    def _follow_worker(self, session: FollowSession, start: FollowStart, process, lot: str, retort_id: str,
+                       initial: float | None) -> None:
+        worker = get_current_worker()
+        run_follow(self.post_message, session, start, process, lot=lot, retort_id=retort_id,
+                   initial_temperature_C=initial, poll_s=self.follow_poll_s,
+                   cancelled=lambda: worker.is_cancelled)
+
+    def action_stop_follow(self) -> None:
+        self.stop_following("stopped by the operator")
+
+    def stop_following(self, why: str) -> None:
+        """Stop following (the rows so far stay in the entry)."""
+        session = self.follow
+        if session is None or not session.active:
+            return
+        session.active = False
+        session.ended = why
+        session.stop.set()
+        self.show_follow_status()
+        self.refresh_bindings()
+
+    def on_follow_event(self, message: FollowEvent) -> None:
+        session = self.follow
+        if session is None or message.session != session.number:
+            return  # from a follow already replaced
+        e = message.event
+        kind = e.get("type")
+        if kind == "error":
+            session.active = False
+            session.ended = "error"
+            session.stop.set()
+            self.show_follow_status(error=e.get("message", ""))
+            self.refresh_bindings()
+            self.notify(e.get("message", ""), title="✗ Following stopped", severity="error", timeout=30)
+            return
+        if not session.active:
+            return  # stopping: the watch's last evaluation adds nothing the operator asked for
+        if kind == "flag":
+            session.flags.append(e)
+            t = e.get("time_min")
+            self.notify(f"FLAG {e['code']}" + (f" at {t:.2f} min" if t is not None else "")
+                        + f": {e.get('message', '')}. Ctrl+S saves the record.",
+                        title="⚑ Deviation flag", severity="warning", timeout=30)
+        elif kind in ("update", "final"):
+            rows = e.get("row", e.get("rows"))
+            if rows is not None:
+                session.rows = int(rows)
+            if e.get("time_min") is not None:
+                session.last_min = float(e["time_min"])
+            session.phase = e.get("phase") or session.phase
+            if message.text is not None and message.text != self.entry.retort_log_text:
+                self.import_log_text(message.text, str(session.path))
+            if kind == "final":
+                session.active = False
+                reason = e.get("reason")
+                session.ended = "cycle done: cooling" if reason == "cooling done" else reason
+                self.refresh_bindings()
+                self.notify(f"{session.path.name}: {session.ended}; following stopped",
+                            title="✓ Cycle done")
+        self.show_follow_status()
+
+    def show_follow_status(self, error: str | None = None) -> None:
+        box = self.query_one("#follow-status", Static)
+        session = self.follow
+        if session is None:
+            box.set_class(False, "-shown")
+            return
+        box.update(f"✗ {error}" if error else session.status())
+        box.set_class(True, "-shown")
+        box.set_class(bool(error), "-error")
+
+    def on_unmount(self) -> None:
+        if self.follow is not None:
+            self.follow.stop.set()
 
     def import_log_text(self, text: str, source: str) -> None:
         """Attach a retort log (used by the import dialog and by a watch)."""
@@ -394,6 +550,7 @@ class FloorScreen(Screen):
             self.notify(str(exc), title="Not saved", severity="error")
             return
         self.saved_record_id = rid
+        self.stop_following(f"record {rid} saved; Ctrl+F follows again into a new entry")
         disposition = (ev.get("guidance") or {}).get("disposition")
         self.notify(f"Record {rid} saved (lot {dev.lot}, guidance {disposition}). A supervisor holds it "
                     "on the holds board (F3).", title="Saved")

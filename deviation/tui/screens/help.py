@@ -27,6 +27,9 @@ Floor entry
   Ctrl+B  back at process temperature now
   Ctrl+T  typed entry: "At" (min from steam on, or HH:MM) + "Reading"
   Ctrl+O  import a retort log (CSV)      Ctrl+R  undo the last reading
+  Ctrl+F  follow a retort log the recorder is still writing: results
+          refresh as rows arrive, ⚑ toast on each new flag; Ctrl+F
+          again stops (Ctrl+S saves the record with the rows so far)
   Ctrl+S  save the record (operator)     Ctrl+N  new entry
   Ctrl+G  curves or guidance (narrow terminals show one at a time)
   "now" is the clock minus "Steam on"; an open low interval counts
@@ -36,6 +39,8 @@ Holds board and record
   Enter open · H hold · R release · D disposition · N note
   S sort · A all or open only · / filter
   Esc back from a record; Y replays the record in the audit screen
+  E (record) re-evaluate the latest snapshot with the current engine
+    and rules (operator, supervisor, process authority)
 
 Audit
   Enter replay · V verify every hash chain · X export the report

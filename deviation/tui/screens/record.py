@@ -1,4 +1,8 @@
-"""One record: its state, hold and disposition, what the actor may do now, and its timeline."""
+"""One record: its state, hold and disposition, what the actor may do now, and its timeline.
+
+E re-evaluates the record's latest snapshot with the current engine and rules, as
+``deviation record evaluate ID`` does (the same function writes the ``evaluated`` event).
+"""
 
 from __future__ import annotations
 
@@ -56,6 +60,7 @@ class RecordScreen(Screen):
         Binding("r", "release", "Release"),
         Binding("d", "decide", "Decide"),
         Binding("n", "note", "Note"),
+        Binding("e", "evaluate", "Evaluate"),
         Binding("y", "audit", "Replay in audit"),
     ]
 
@@ -99,6 +104,32 @@ class RecordScreen(Screen):
 
     def action_note(self) -> None:
         run_record_action(self, self.record_id, "note", self.reload)
+
+    def action_evaluate(self) -> None:
+        """Re-evaluate the latest snapshot and append ``evaluated`` (role checked as in the CLI)."""
+        from types import SimpleNamespace
+
+        from deviation.cli_records import _eval_summary, _evaluate_into
+
+        ctx = self.app.ctx
+        try:
+            role = roles.check_role(ctx.actor, ctx.role, "evaluate")
+            view = ctx.store.record(self.record_id)
+            before = _eval_summary(view.evaluation)
+            # The CLI's defaults: not conservative, the built-in rule set.
+            ev = _evaluate_into(ctx.store, self.record_id, view.snapshot, view.snapshot_seq,
+                                SimpleNamespace(conservative=False, rules=None), ctx.actor, role)
+        except DeviationError as exc:
+            self.notify(str(exc), title="Refused", severity="error")
+            return
+        after = _eval_summary(ev)
+        was = (f" (was F0 {before['delivered_F_min']:.3f} min, {before['disposition']})"
+               if before and before.get("delivered_F_min") is not None else "")
+        F = after.get("delivered_F_min")
+        self.notify(f"Record {self.record_id} re-evaluated by {ctx.actor} ({role}): "
+                    + (f"F0 {F:.3f} min, " if F is not None else "")
+                    + f"guidance {after.get('disposition')}{was}.", title="◐ Evaluated")
+        self.reload()
 
     def action_audit(self) -> None:
         self.app.open_audit(self.record_id)
