@@ -164,6 +164,19 @@ def _seed_library(store, cases_dir: Path) -> int:
     return n
 
 
+def _relative_sources(loaded, base: Path):
+    """Name the demo files relative to the demo folder's parent, so the seeded records (and their
+    hashes) are the same wherever the project is checked out."""
+    import os
+    from dataclasses import replace
+
+    def rel(p):
+        return None if p is None else os.path.relpath(p, base)
+
+    return replace(loaded, source=rel(loaded.source), retort_log_source=rel(loaded.retort_log_source),
+                   cold_spot_log_source=rel(loaded.cold_spot_log_source))
+
+
 def seed_demo(store, cases_dir: str | Path | None = None) -> dict:
     """Fill an empty store with the demo plant's processes and a few records in different states."""
     from deviation.case import load_case
@@ -179,7 +192,7 @@ def seed_demo(store, cases_dir: str | Path | None = None) -> dict:
         path = cases_dir / name
         if not path.exists():
             continue
-        loaded = load_case(path)
+        loaded = _relative_sources(load_case(path), cases_dir.parent)
         dev, proc = loaded.case.deviation, loaded.case.process
         rid = store.create_record(loaded.snapshot(), actor=op, role="operator", lot=dev.lot,
                                   retort_id=dev.retort_id, process_id=proc.id)
