@@ -1267,9 +1267,10 @@ class Store:
     # -- process library (not in this schema yet) -------------------------------------------
 
     def resolve_process_ref(self, ref: str) -> dict:
-        """Resolve ``deviation.process_ref`` (the process library is not part of this store yet)."""
-        raise StoreError(f"process_ref '{ref}': this store has no process library yet; put the "
-                         "[process] table in the case file", source=self.name)
+        """Resolve ``deviation.process_ref`` from the process library on this store."""
+        from deviation import library
+
+        return library.resolve(self, ref)
 
 
 # ---------------------------------------------------------------------------------------------
