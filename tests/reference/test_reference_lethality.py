@@ -34,20 +34,28 @@ def test_lethal_rate_table_values_fahrenheit_equivalent():
     np.testing.assert_allclose(in_F, in_C, rtol=1e-12)
 
 
-def test_fao_285_worked_example_total():
-    # FAO Fisheries Technical Paper 285 (Warne 1988), §1.3.3: readings every 5 min, sum of lethal
-    # rates 2.925, F0 = 5 × 2.925 = 14.6 min. Worked-example total, readings reconstructed, from
-    # memory: the published table is not reproduced here, so a lethal-rate series of our own
-    # with that sum and negligible end points (where trapezoid and rectangle rules agree) is
-    # turned back into temperatures and integrated.
-    interior = [0.005, 0.02, 0.08, 0.2, 0.4, 0.6, 0.7, 0.55, 0.25, 0.08, 0.03, 0.01]
-    rates = np.array([1e-7, *interior, 1e-7])
+def test_fao_285_worked_example_total_and_heating_phase():
+    # FAO Fisheries Technical Paper 285 (Warne 1988, Manual on fish canning), §1.3.3 and its
+    # Table 3: temperatures every 5 min for a process of 60 min at 121.1 °C. Published figures:
+    # the lethal rates sum to 2.925, F0 = 5 × 2.925 = 14.6 min; for the heating phase the rates at
+    # 25 and 60 min (0 and 0.776, steam off at 60 min) are halved (0.388) and added to the sum
+    # from 30 to 55 min, giving 1.730, F0 = 8.6 min at steam off. The individual readings of
+    # Table 3 are not reproduced here: the series below is our own, built to match every
+    # published figure (L(25) = 0, L(60) = 0.776, sum 30..55 = 1.342, total 2.925, readings
+    # before 25 min and at the end negligible).
+    heating = [0.002, 0.02, 0.09, 0.23, 0.4, 0.6]  # 30..55 min, sum 1.342
+    cooling = [0.45, 0.22, 0.09, 0.03, 0.012, 0.005]  # 65..90 min, sum 0.807
+    rates = np.array([1e-9] * 5 + [1e-9] + heating + [0.776] + cooling + [1e-9])  # 0..95 min
+    assert sum(heating) == pytest.approx(1.342, abs=1e-9)
     assert rates.sum() == pytest.approx(2.925, abs=1e-6)
     temperature_C = 121.1 + 10.0 * np.log10(rates)
     time_min = 5.0 * np.arange(rates.size)
     F, cumulative = general_method(time_min, temperature_C, 121.1, 10.0)
-    assert F == pytest.approx(5.0 * 2.925, abs=1e-5)  # 14.625: end points contribute 5e-7
-    assert round(F, 1) == 14.6  # the published figure
+    assert round(F, 1) == 14.6  # the published process F0
+    assert F == pytest.approx(5.0 * 2.925, abs=1e-5)
+    at_steam_off = cumulative[np.flatnonzero(time_min == 60.0)[0]]
+    assert at_steam_off == pytest.approx(5.0 * 1.730, abs=1e-5)  # 8.65: trapezoid from 25 to 60 min
+    assert 8.6 <= at_steam_off < 8.7  # the published 8.6 (5 × 1.730 = 8.65, given to one decimal)
     assert cumulative[-1] == F
 
 
