@@ -104,7 +104,10 @@ class ResultsPanel(Static):
         t.add_row("botulinum", f"{ev.botulinum_log_reductions:.1f} log",
                   Text(("✓ meets " if bot_ok else "✗ below ") + f"{ev.botulinum_log_reductions_required:g}D",
                        style="green" if bot_ok else "bold red"))
-        basis = "imported retort log" if figures.from_log else "filed cycle + entries"
+        # Without a log the evaluation covers the whole filed cycle with the entries, so the
+        # spoilage and botulinum rows are for the projected F0: say so.
+        basis = ("imported retort log" if figures.from_log
+                 else "filed cycle + entries; spoilage, botulinum: whole cycle")
         if figures.low_running:
             basis += "; ▼ still low (counted until now)"
         head = disposition_text(g.get("disposition"))
