@@ -161,7 +161,11 @@ def _rules(args) -> int:
         t.add_column("why")
         for r in rows:
             t.add_row(r.rule_id, r.disposition, "✓ yes" if r.fired else "· no", "\n".join(r.trace))
-        Console().print(t)
+        console = Console()
+        console.print(t)
+        from deviation.evaluate import CAUTION
+
+        console.print(CAUTION)
         return 0
     print("usage: deviation rules {check,explain} ...", file=sys.stderr)
     return 2

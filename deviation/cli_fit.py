@@ -162,6 +162,8 @@ def run(args) -> int:
         console.print(f"[yellow]Note: {report.lowest_F0} had the lowest F0 of its own readings "
                       "in this test; the process authority decides which point is the cold "
                       "spot.[/yellow]", highlight=False)
+    console.print("These parameters are for the process authority to review before anything is "
+                  "filed; the process authority decides, and local regulations govern.", highlight=False)
     console.print("Paste into the case file:", highlight=False)
     sys.stdout.flush()
     sys.stdout.write(table)  # verbatim: no wrapping or markup, so it parses as TOML
