@@ -7,7 +7,6 @@ from hypothesis import strategies as st
 from deviation import roles
 from deviation.errors import PermissionDenied
 from deviation.roles import TransitionRefused, check_role, state_of
-from deviation.store import open_store
 
 SNAPSHOT = {"case": {"deviation": {"lot": "L-1"}}}
 EVALUATION = {"engine_version": "0.1.0", "delivered_F_min": 7.0,

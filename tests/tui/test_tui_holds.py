@@ -3,7 +3,7 @@ see the timeline, decide it as process authority; refusals read as in the CLI.""
 
 import asyncio
 import functools
-from datetime import datetime, timedelta
+from datetime import datetime
 
 import pytest
 from textual.widgets import DataTable, Input, Select
