@@ -14,6 +14,7 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
 from textual.screen import ModalScreen
+from deviation.tui.widgets.steady_input import SteadyInput
 from textual.widgets import Button, Input, Label, Select, Static
 
 from deviation.errors import DeviationError
@@ -91,7 +92,7 @@ class FormDialog(ModalScreen[T | None], Generic[T]):
                     yield Select([(c, c) for c in f.choices], value=value if value in f.choices else f.choices[0],
                                  allow_blank=False, id=f"field-{f.name}")
                 else:
-                    yield Input(value=value, placeholder=f.placeholder, id=f"field-{f.name}")
+                    yield SteadyInput(value=value, placeholder=f.placeholder, id=f"field-{f.name}")
             yield Static("", id="dialog-error")
             with Horizontal(id="dialog-buttons"):
                 yield Button("OK (Enter)", variant="primary", id="ok")

@@ -23,6 +23,7 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import Screen
+from deviation.tui.widgets.steady_input import SteadyInput
 from textual.widgets import Footer, Input, Label, Select, Static
 from textual.worker import get_current_worker
 
@@ -111,16 +112,16 @@ class FloorScreen(Screen):
                 for name, label, placeholder in FORM:
                     with Horizontal(classes="row"):
                         yield Label(label, classes="row-label")
-                        yield Input(placeholder=placeholder, id=name, compact=True)
+                        yield SteadyInput(placeholder=placeholder, id=name, compact=True)
                     yield Static("", id=f"{name}-error", classes="field-error")
                 yield Static("", id="now-line")
                 yield Label("While the cycle runs", classes="form-head")
                 with Horizontal(classes="row"):
                     yield Label("Reading °C", classes="row-label")
-                    yield Input(placeholder="e.g. 117.5", id="reading", compact=True)
+                    yield SteadyInput(placeholder="e.g. 117.5", id="reading", compact=True)
                 with Horizontal(classes="row"):
                     yield Label("At", classes="row-label")
-                    yield Input(placeholder="min or HH:MM", id="at", compact=True)
+                    yield SteadyInput(placeholder="min or HH:MM", id="at", compact=True)
                 yield Static("", id="entry-error", classes="field-error")
                 yield Static("", id="readings")
             with Vertical(id="floor-right"):

@@ -12,6 +12,7 @@ from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.screen import Screen
+from deviation.tui.widgets.steady_input import SteadyInput
 from textual.widgets import DataTable, Footer, Input, Static
 
 from deviation.errors import DeviationError
@@ -102,7 +103,7 @@ class HoldsScreen(Screen):
 
     def compose(self) -> ComposeResult:
         yield StatusLine(id="status")
-        yield Input(placeholder="/ filter: lot, retort, process, state or guidance words", id="filter",
+        yield SteadyInput(placeholder="/ filter: lot, retort, process, state or guidance words", id="filter",
                     compact=True)
         yield DataTable(id="board", cursor_type="row", zebra_stripes=True)
         yield Static("", id="board-summary")
