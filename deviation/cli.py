@@ -72,7 +72,7 @@ def build_parser() -> argparse.ArgumentParser:
     re_.add_argument("--conservative", action="store_true")
     _add_rules_option(re_)
 
-    for name, register in _extensions():
+    for register in _extensions():
         register(sub)
     return parser
 
@@ -89,7 +89,7 @@ def _extensions():
             if exc.name != f"deviation.{name}":
                 raise
             continue
-        out.append((name, module.register))
+        out.append(module.register)
     return out
 
 

@@ -576,7 +576,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         from deviation.case import UncertaintySpec
 
         mc = _monte_carlo(loaded, profile, analysis, model, dev.uncertainty or UncertaintySpec(),
-                          conservative, source)
+                          conservative, source, delivered.F_min)
 
     # Lethality established / fully established.
     gap_over = analysis.max_gap_min > dev.record_gap_limit_min
@@ -743,7 +743,8 @@ def _extension(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.C
 
 
 def _monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.CycleAnalysis,
-                 model: ColdSpotModel, spec, conservative: bool, source: str) -> dict[str, Any]:
+                 model: ColdSpotModel, spec, conservative: bool, source: str,
+                 delivered_F: float) -> dict[str, Any]:
     """Monte Carlo over fh (or diffusivity), jh, initial temperature and spores per container."""
     process, dev = loaded.case.process, loaded.case.deviation
     micro = process.microbiology
@@ -752,7 +753,7 @@ def _monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof
     out: dict[str, Any] = {"samples": n, "seed": spec.seed, "spreads": spec.model_dump(exclude={"samples", "seed"})}
     if source == "measured":
         out["reason"] = "the cold spot is measured: only the spore load is uncertain"
-        F = np.full(n, _measured_F(loaded, conservative))
+        F = np.full(n, delivered_F)
     else:
         fh_factor = lognormal_factors(rng, spec.fh_relative_sd, n)
         jh_factor = lognormal_factors(rng, spec.jh_relative_sd, n)
@@ -789,20 +790,13 @@ def _monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof
     return out
 
 
-def _measured_F(loaded: LoadedCase, conservative: bool) -> float:
-    measured = _parse_cached(loaded.cold_spot_log_text, loaded.cold_spot_log_source or "cold-spot log", "cold-spot")
-    p = loaded.case.process
-    return float(general_method(measured.time_min, measured.temperature_C, p.reference_temperature_C, p.z_C,
-                                conservative=conservative)[0])
-
-
 def _reprocess(loaded: LoadedCase, model: ColdSpotModel, delivered_F: float, conservative: bool,
                final_field_C: np.ndarray | None = None) -> dict[str, Any]:
     """F a full reprocess as filed adds, from a uniform product temperature, and the total.
 
     F values at the same Tref and z add. The reprocess starts from ``reprocess_from_temperature_C``
     when given, else from the filed minimum initial temperature (a reprocess must start from a
-    re-established initial temperature).
+    re-established initial temperature), or from the field the finite-difference model left.
     """
     process, dev = loaded.case.process, loaded.case.deviation
     start_C = dev.reprocess_from_temperature_C
@@ -814,8 +808,11 @@ def _reprocess(loaded: LoadedCase, model: ColdSpotModel, delivered_F: float, con
         start_C = float(np.min(final_field_C))
         basis = "the field left by the finite-difference model at the end of the record (coldest node shown)"
     elif start_C is None:
-        start_C = initial = process.minimum_initial_temperature_C
-        basis = "the filed minimum initial temperature"
+        # From the filed minimum initial temperature a reprocess as filed is the filed cycle.
+        F = scheduled_F_min(process, conservative=conservative)
+        return {"reprocess_F_min": F, "total_F_with_reprocess_min": delivered_F + F,
+                "reprocess_from_temperature_C": process.minimum_initial_temperature_C,
+                "reprocess_from": "the filed minimum initial temperature"}
     come_up_start = process.come_up_start_temperature_C
     profile = _filed_profile(process, start_C=start_C if come_up_start is None else come_up_start,
                              come_up_min=process.come_up_time_min, hold_min=process.process_time_min,
@@ -833,11 +830,11 @@ def evaluate_snapshot(snapshot: dict, **kw) -> Evaluation:
 
 def check_record(loaded: LoadedCase) -> None:
     """Parse the logs of a case early, so bad input is reported before anything is stored."""
+    # Through the evaluation's cache: the evaluation that follows does not parse them again.
     if loaded.retort_log_text is not None:
-        prof.parse_log_text(loaded.retort_log_text, source=loaded.retort_log_source or "retort log")
+        _parse_cached(loaded.retort_log_text, loaded.retort_log_source or "retort log", "retort")
     if loaded.cold_spot_log_text is not None:
-        prof.parse_log_text(loaded.cold_spot_log_text, source=loaded.cold_spot_log_source or "cold-spot log",
-                            kind="cold-spot")
+        _parse_cached(loaded.cold_spot_log_text, loaded.cold_spot_log_source or "cold-spot log", "cold-spot")
 
 
 __all__ = ["Evaluation", "evaluate_case", "evaluate_snapshot", "cold_spot_model", "CAUTION",
