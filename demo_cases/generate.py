@@ -58,9 +58,9 @@ def retort_trace(p: dict, *, step_min=0.5, start_C=28.0, come_up_min=None, hold_
 
 def _predicted_cold_spot(p: dict, t, T, *, initial_C: float, seed: int) -> np.ndarray:
     """A cold-spot trace for the demo: the conduction model's answer plus thermocouple noise."""
-    from deviation.case import Process
+    from deviation.inputs.case import Process
     from deviation.evaluate import cold_spot_model, deliver
-    from deviation.profile import RetortProfile
+    from deviation.inputs.logs import RetortProfile
 
     process = Process.model_validate(p)
     model = cold_spot_model(process)

@@ -1,6 +1,6 @@
 """deviation: evaluate thermal-process deviations in low-acid canned foods.
 
-The numerical core (``deviation.heating``, ``deviation.lethality``, ``deviation.spoilage``)
+The numerical core (``deviation.physics.heating``, ``deviation.physics.lethality``, ``deviation.physics.spoilage``)
 is pure numpy/scipy. ``deviation.evaluate`` is the one pipeline that wires it together.
 """
 

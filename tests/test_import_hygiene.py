@@ -7,14 +7,14 @@ from pathlib import Path
 import pytest
 
 CORE_MODULES = [
-    "deviation.heating",
-    "deviation.heating.conduction",
-    "deviation.heating.heating_curve",
-    "deviation.heating.superposition",
-    "deviation.heating.finite_difference",
-    "deviation.uncertainty",
-    "deviation.lethality",
-    "deviation.spoilage",
+    "deviation.physics.heating",
+    "deviation.physics.heating.conduction",
+    "deviation.physics.heating.heating_curve",
+    "deviation.physics.heating.superposition",
+    "deviation.physics.heating.finite_difference",
+    "deviation.physics.uncertainty",
+    "deviation.physics.lethality",
+    "deviation.physics.spoilage",
 ]
 FORBIDDEN = ["pydantic", "rich", "textual", "sqlalchemy"]
 REPO_ROOT = Path(__file__).resolve().parents[1]

@@ -6,7 +6,7 @@ with a 9-minute come-up, a 22-minute hold and 25 minutes of water cooling at 22 
 
 Each thermocouple's readings are the heating-curve model of this tool (Ball's step response
 ``min(1, j 10^(-t/f))`` superposed over the retort trace, with ``fc, jc`` after steam off:
-``deviation.heating``) for the known parameters in ``THERMOCOUPLES`` below, plus Gaussian
+``deviation.physics.heating``) for the known parameters in ``THERMOCOUPLES`` below, plus Gaussian
 thermocouple noise of 0.1 °C standard deviation, rounded to 0.01 °C. ``deviation fit`` should
 give them back.
 
@@ -25,8 +25,8 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parents[1]))
 
-from deviation.heating.heating_curve import step_unaccomplished  # noqa: E402
-from deviation.heating.superposition import superpose  # noqa: E402
+from deviation.physics.heating.heating_curve import step_unaccomplished  # noqa: E402
+from deviation.physics.heating.superposition import superpose  # noqa: E402
 
 OUT = HERE / "OH-PEA-hp-test.csv"
 STEP_MIN = 0.5

@@ -2,7 +2,7 @@
 
 Run ``deviation tui`` (``--demo`` for a store seeded from ``demo_cases/``). The UI computes
 nothing itself: every figure comes from :func:`deviation.evaluate.evaluate_case`, every write
-goes through :mod:`deviation.store` with the same role rules and messages as the CLI.
+goes through :mod:`deviation.records.store` with the same role rules and messages as the CLI.
 """
 
 from deviation.tui.app import DeviationApp, build_app

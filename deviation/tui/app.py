@@ -101,7 +101,7 @@ def build_app(db=None, demo: bool = False, actor: str | None = None, role: str |
     clock : callable, optional
         "Now" as a ``datetime`` (tests inject a fixed clock).
     """
-    from deviation.store import open_store
+    from deviation.records.store import open_store
     from deviation.tui.sources import REPO_DEMO_CASES, demo_db_path, seed_demo
 
     if demo and db is None:
@@ -114,7 +114,7 @@ def build_app(db=None, demo: bool = False, actor: str | None = None, role: str |
     if actor:
         ctx.actor = actor
     if role:
-        from deviation.roles import normalize_role
+        from deviation.records.roles import normalize_role
 
         ctx.role = normalize_role(role, actor=ctx.actor)
     if clock is not None:

@@ -5,7 +5,7 @@ draft restores exactly what was on the screen) and the readings taken while the 
 :func:`build_case` lays the readings over the filed cycle as ``[[deviation.events]]``
 (``temperature-low`` intervals, the lowest reading applied to the whole interval, as a process
 authority reads the bottom of the trace) and validates the result with the case contract
-(:func:`deviation.case.parse_case`), so every message is the one the CLI gives for the same
+(:func:`deviation.inputs.case.parse_case`), so every message is the one the CLI gives for the same
 value in a case file.
 
 Times are minutes from steam on (the cycle start); "now" is the clock minus the cycle start.
@@ -20,7 +20,7 @@ from dataclasses import asdict, dataclass, field, replace
 from datetime import datetime, timedelta
 from typing import Any, Callable
 
-from deviation.case import Case, LoadedCase, parse_case
+from deviation.inputs.case import Case, LoadedCase, parse_case
 from deviation.errors import CaseError, DeviationError
 
 # A low interval opened and closed within the same recorder second still lasts one second [min]:

@@ -1,7 +1,7 @@
 """Following a retort log that a recorder is still writing, for the floor-entry screen.
 
-The file is read with :class:`deviation.watch.LogFollower` and judged row by row by a
-:class:`deviation.watch.Watch` (no store: the operator saves the record with Ctrl+S, as for
+The file is read with :class:`deviation.live.watch.LogFollower` and judged row by row by a
+:class:`deviation.live.watch.Watch` (no store: the operator saves the record with Ctrl+S, as for
 any entry), in a worker thread. The watch's events reach the screen as :class:`FollowEvent`
 messages; the screen feeds the rows so far through the same path as an imported log, so
 results, flags, guidance and curves refresh as rows arrive. Live flags come from the watch,
@@ -28,7 +28,7 @@ class FollowStart:
     """A retort log checked and opened for following (the follow dialog's result)."""
 
     path: Path
-    follower: object  # deviation.watch.LogFollower, positioned after ``lines``
+    follower: object  # deviation.live.watch.LogFollower, positioned after ``lines``
     lines: list[str]  # the complete lines read so far, header included
     readings: int  # data rows among them
 
@@ -45,8 +45,8 @@ def open_followed_log(path_text: str) -> FollowStart:
         The file is missing, a folder, unreadable, has no header yet, a bad header or a bad row
         (the retort-log reader's messages).
     """
-    from deviation.profile import parse_log_text
-    from deviation.watch import LogFollower
+    from deviation.inputs.logs import parse_log_text
+    from deviation.live.watch import LogFollower
 
     text = path_text.strip()
     if not text:
@@ -75,7 +75,7 @@ def open_followed_log(path_text: str) -> FollowStart:
 
 
 class FollowEvent(Message):
-    """One event of the watch (see :mod:`deviation.watch`), posted from the follow thread."""
+    """One event of the watch (see :mod:`deviation.live.watch`), posted from the follow thread."""
 
     def __init__(self, session: int, event: dict, text: str | None) -> None:
         super().__init__()
@@ -117,7 +117,7 @@ def run_follow(post, session: FollowSession, start: FollowStart, process, *, lot
 
     ``post`` is given each :class:`FollowEvent`; nothing here touches the screen.
     """
-    from deviation.watch import Watch
+    from deviation.live.watch import Watch
 
     holder: list = []
 

@@ -1,6 +1,6 @@
 """Where the terminal UI finds filed processes, and the demo store it can open.
 
-Filed processes come from the process library in the store (``deviation.library``) when that
+Filed processes come from the process library in the store (``deviation.records.processes``) when that
 layer is installed, else from a folder of TOML files: ``<cases>/processes/*.toml`` (one
 ``[process]`` table each) and the ``[process]`` tables of the case files in ``<cases>``.
 """
@@ -37,7 +37,7 @@ class FiledProcess:
 
 def _library():
     try:
-        from deviation import library
+        from deviation.records import processes as library
     except ImportError:
         return None
     return library
@@ -92,7 +92,7 @@ def library_processes(store) -> list[FiledProcess]:
 
 def folder_processes(cases_dir: str | Path | None) -> list[FiledProcess]:
     """Filed processes from ``processes/*.toml`` and the case files of a folder."""
-    from deviation.case import load_toml
+    from deviation.inputs.case import load_toml
 
     if cases_dir is None:
         return []
@@ -144,7 +144,7 @@ def _seed_library(store, cases_dir: Path) -> int:
     add = getattr(lib, "add_process", None) if lib is not None else None
     if add is None:
         return 0
-    from deviation.case import load_toml
+    from deviation.inputs.case import load_toml
 
     n = 0
     for path in sorted((cases_dir / "processes").glob("*.toml")):
@@ -179,7 +179,7 @@ def _relative_sources(loaded, base: Path):
 
 def seed_demo(store, cases_dir: str | Path | None = None) -> dict:
     """Fill an empty store with the demo plant's processes and a few records in different states."""
-    from deviation.case import load_case
+    from deviation.inputs.case import load_case
     from deviation.evaluate import evaluate_case
 
     cases_dir = Path(cases_dir) if cases_dir else REPO_DEMO_CASES

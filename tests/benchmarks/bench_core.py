@@ -21,12 +21,12 @@ import pytest
 import scipy.sparse as sp
 from scipy.integrate import solve_ivp
 
-from deviation.heating import (
+from deviation.physics.heating import (
     cylinder_centre_unaccomplished,
     diffusivity_from_fh_cylinder,
     superpose,
 )
-from deviation.lethality import general_method
+from deviation.physics.lethality import general_method
 
 RADIUS_M = 0.081 / 2.0
 HEIGHT_M = 0.111

@@ -19,7 +19,7 @@ import pytest
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from deviation.case import load_case  # noqa: E402
+from deviation.inputs.case import load_case  # noqa: E402
 from deviation.evaluate import evaluate_case  # noqa: E402
 
 
@@ -50,7 +50,7 @@ def measure() -> dict[str, float]:
         "Monte Carlo, 1,000 samples [ms]": median_ms(lambda: evaluate_case(loaded, what_if=False,
                                                                            uncertainty=True), 5),
     }
-    from deviation import evaluate as E
+    from deviation.evaluate import pipeline as E
     E._parse_cached.cache_clear()
     out["first evaluation incl. CSV parse [ms]"] = median_ms(
         lambda: (E._parse_cached.cache_clear(), evaluate_case(loaded, what_if=False)), 5)

@@ -22,9 +22,9 @@ import pytest
 import scipy.sparse as sp
 from scipy.integrate import solve_ivp
 
-from deviation.heating import conduction, superpose
-from deviation.heating.finite_difference import DEFAULT_CYLINDER_GRID, _axis, cylinder_fd
-from deviation.lethality import general_method
+from deviation.physics.heating import conduction, superpose
+from deviation.physics.heating.finite_difference import DEFAULT_CYLINDER_GRID, _axis, cylinder_fd
+from deviation.physics.lethality import general_method
 
 RADIUS_M, HEIGHT_M, FH_MIN, INITIAL_C = 0.081 / 2.0, 0.111, 40.0, 40.0
 ALPHA_M2_S = conduction.diffusivity_from_fh_cylinder(FH_MIN, RADIUS_M, HEIGHT_M)

@@ -36,7 +36,7 @@ def _load_module():
 def bench(url: str, n: int, processes: int = 8) -> dict:
     import sqlalchemy as sa
 
-    from deviation.store import open_store
+    from deviation.records.store import open_store
 
     load = _load_module()
     admin = sa.create_engine(url, isolation_level="AUTOCOMMIT")

@@ -27,7 +27,7 @@ import pytest
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
-from deviation.store import (  # noqa: E402
+from deviation.records.store import (  # noqa: E402
     BUNDLE_FORMAT,
     BUNDLE_VERSION,
     GENESIS_HASH,
@@ -43,10 +43,10 @@ DEMO = REPO / "demo_cases"
 
 def demo_evaluations() -> list[tuple[dict, dict]]:
     """(snapshot, evaluation JSON) of every demo case that evaluates on its own."""
-    from deviation.case import load_case
+    from deviation.inputs.case import load_case
     from deviation.errors import DeviationError
     from deviation.evaluate import evaluate_case
-    from deviation.rules import load_rule_set
+    from deviation.guidance.rules import load_rule_set
 
     rs = load_rule_set([])
     out = []

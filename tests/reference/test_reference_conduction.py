@@ -15,7 +15,7 @@ from scipy.optimize import brentq
 from scipy.sparse import diags
 from scipy.special import j0, j1
 
-from deviation.heating.conduction import (
+from deviation.physics.heating.conduction import (
     brick_centre_unaccomplished,
     cylinder_centre_unaccomplished,
     fh_from_diffusivity_brick,

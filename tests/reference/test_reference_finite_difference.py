@@ -22,8 +22,8 @@ import pytest
 from scipy.optimize import brentq
 from scipy.special import j0, j1, jn_zeros
 
-from deviation.heating import conduction
-from deviation.heating.finite_difference import brick_fd, cylinder_fd
+from deviation.physics.heating import conduction
+from deviation.physics.heating.finite_difference import brick_fd, cylinder_fd
 
 N_TERMS = 80
 

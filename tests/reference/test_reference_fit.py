@@ -1,4 +1,4 @@
-"""Calibration (deviation.fit) against published results.
+"""Calibration (deviation.physics.calibration) against published results.
 
 Sources: Ball (1923), *Bull. Natl. Res. Counc.* 7, part 1, no. 37 (semi-log heating curve, fh,
 jh, the corrected zero at 58% of the come-up); Carslaw & Jaeger, *Conduction of Heat in Solids*,
@@ -15,15 +15,15 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from deviation.fit import CORRECTED_ZERO_FRACTION, semilog_fit
-from deviation.heating.conduction import (
+from deviation.physics.calibration import CORRECTED_ZERO_FRACTION, semilog_fit
+from deviation.physics.heating.conduction import (
     brick_centre_unaccomplished,
     cylinder_centre_unaccomplished,
     fh_from_diffusivity_brick,
     fh_from_diffusivity_cylinder,
 )
-from deviation.heating.heating_curve import step_unaccomplished
-from deviation.heating.superposition import superpose
+from deviation.physics.heating.heating_curve import step_unaccomplished
+from deviation.physics.heating.superposition import superpose
 
 TR_C, IT_C = 121.1, 40.0
 RADIUS_M, HEIGHT_M, ALPHA_M2_S = 0.037, 0.113, 1.7e-7  # a 74 x 113 mm can of a conduction pack

@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 from scipy.integrate import quad, trapezoid
 
-from deviation.lethality import general_method, lethal_rate
-from deviation.units import celsius_to_fahrenheit, fahrenheit_to_celsius
+from deviation.physics.lethality import general_method, lethal_rate
+from deviation.inputs.units import celsius_to_fahrenheit, fahrenheit_to_celsius
 
 
 def test_lethal_rate_table_values_celsius():

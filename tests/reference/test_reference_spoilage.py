@@ -9,7 +9,7 @@ import math
 
 import pytest
 
-from deviation.spoilage import (
+from deviation.physics.spoilage import (
     F_for_log_reductions,
     expected_nonsterile_containers,
     log_reductions,

@@ -10,7 +10,7 @@ import functools
 import pytest
 from textual.widgets import Input, Select
 
-from deviation.case import load_toml, parse_case
+from deviation.inputs.case import load_toml, parse_case
 from deviation.cli import main
 from deviation.errors import CaseError
 from deviation.tui.app import build_app
@@ -101,7 +101,7 @@ async def test_drop_entered_now_changes_guidance_and_save_makes_a_record(db):
         await pilot.press("ctrl+s")
         await pilot.pause()
         rid = app.screen.saved_record_id
-    from deviation.store import open_store
+    from deviation.records.store import open_store
 
     store = open_store(db)
     view = store.record(rid)

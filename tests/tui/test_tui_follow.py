@@ -16,7 +16,7 @@ import pytest
 from textual.widgets import Input, Select
 
 from deviation.cli import main
-from deviation.store import open_store
+from deviation.records.store import open_store
 from deviation.tui.app import build_app
 from deviation.tui.screens.record import RecordScreen
 from deviation.tui.widgets.guidance import GuidancePanel

@@ -8,7 +8,7 @@ from datetime import datetime
 import pytest
 from textual.widgets import DataTable, Input, Select
 
-from deviation.store import open_store
+from deviation.records.store import open_store
 from deviation.tui.app import build_app
 from deviation.tui.screens.holds import HoldsScreen
 from deviation.tui.screens.record import RecordScreen

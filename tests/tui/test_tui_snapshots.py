@@ -20,8 +20,8 @@ def app_factory(tmp_path, monkeypatch):
     monkeypatch.delenv("DEVIATION_DB", raising=False)
     monkeypatch.delenv("DEVIATION_ROLE", raising=False)
     ids, ticks = count(1), count(0)
-    monkeypatch.setattr("deviation.store.new_record_id", lambda: f"DR-SNAP{next(ids):05d}")
-    monkeypatch.setattr("deviation.store.utc_now",
+    monkeypatch.setattr("deviation.records.store.new_record_id", lambda: f"DR-SNAP{next(ids):05d}")
+    monkeypatch.setattr("deviation.records.store.utc_now",
                         lambda: f"2026-11-20T08:{next(ticks) % 60:02d}:00.000000Z")
 
     def make(role="operator", actor="olga"):

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from typing import Callable
 
-from deviation import roles
+from deviation.records import roles
 from deviation.errors import DeviationError
 from deviation.tui.screens.dialogs import (
     DecideDialog,

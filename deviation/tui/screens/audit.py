@@ -26,11 +26,11 @@ from deviation.tui.widgets.timeline import Timeline
 def replay_record(store, record_id: str) -> dict:
     """Recompute a record's latest evaluation; the stored and the new one, and what differs.
 
-    The comparison is :func:`deviation.cli_records.replay_item` (the CLI's ``replay``), so the
+    The comparison is :func:`deviation.cli.records.replay_item` (the CLI's ``replay``), so the
     verdict and its reasons read the same here and in ``deviation replay``.
     """
-    from deviation.case import LoadedCase
-    from deviation.cli_records import compare_evaluations, replay_item
+    from deviation.inputs.case import LoadedCase
+    from deviation.cli.records import compare_evaluations, replay_item
     from deviation.evaluate import default_rule_set, evaluate_case
 
     rs = default_rule_set()
@@ -60,7 +60,7 @@ def replay_record(store, record_id: str) -> dict:
 
 
 def verify_text(res) -> Text:
-    """The CLI's verify sentence for a :class:`~deviation.store.VerifyResult`."""
+    """The CLI's verify sentence for a :class:`~deviation.records.store.VerifyResult`."""
     if res.ok:
         return Text(f"✓ every hash chain holds: {res.checked_events} events in {res.records} records; "
                     f"store head {res.head['global_seq']} {res.head['global_hash'][:16]}…", style="green")

@@ -18,7 +18,7 @@ from deviation.tui.widgets.steady_input import SteadyInput
 from textual.widgets import Button, Input, Label, Select, Static
 
 from deviation.errors import DeviationError
-from deviation.roles import ROLES
+from deviation.records.roles import ROLES
 from deviation.tui.follow import FollowStart, open_followed_log
 
 T = TypeVar("T")
@@ -175,7 +175,7 @@ class IdentityDialog(FormDialog[Identity]):
     FIELDS = (Field("actor", "Name", "your name"), Field("role", "Role", choices=ROLES))
 
     def make_result(self, v):
-        from deviation.roles import normalize_role
+        from deviation.records.roles import normalize_role
 
         if not v["actor"]:
             raise DeviationError("give a name: it is recorded with every event", source="name")

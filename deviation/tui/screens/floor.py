@@ -360,8 +360,8 @@ class FloorScreen(Screen):
 
     def action_import_log(self) -> None:
         def read(choice: FileChoice) -> None:
-            from deviation.case import _read_text  # the case reader's own messages
-            from deviation.profile import parse_log_text
+            from deviation.inputs.case import _read_text  # the case reader's own messages
+            from deviation.inputs.logs import parse_log_text
 
             path = Path(choice.path).expanduser()
             text = _read_text(path, what="retort log", named_in="import")
@@ -407,7 +407,7 @@ class FloorScreen(Screen):
 
     def start_following(self, start: FollowStart) -> None:
         """Follow the log opened by the dialog (rows so far first, then as they arrive)."""
-        from deviation.case import parse_case
+        from deviation.inputs.case import parse_case
 
         proc = self._process()
         if proc is None:
@@ -525,7 +525,7 @@ class FloorScreen(Screen):
         self.save_draft()
 
     def action_save(self) -> None:
-        from deviation import roles
+        from deviation.records import roles
         from deviation.evaluate import evaluate_case
 
         ctx = self.app.ctx

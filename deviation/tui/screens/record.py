@@ -13,7 +13,7 @@ from textual.binding import Binding
 from textual.screen import Screen
 from textual.widgets import Footer, Static
 
-from deviation import roles
+from deviation.records import roles
 from deviation.errors import DeviationError
 from deviation.tui.screens.actions import run_record_action
 from deviation.tui.screens.floor import StatusLine
@@ -109,7 +109,7 @@ class RecordScreen(Screen):
         """Re-evaluate the latest snapshot and append ``evaluated`` (role checked as in the CLI)."""
         from types import SimpleNamespace
 
-        from deviation.cli_records import _eval_summary, _evaluate_into
+        from deviation.cli.records import _eval_summary, _evaluate_into
 
         ctx = self.app.ctx
         try:

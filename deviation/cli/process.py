@@ -1,0 +1,173 @@
+"""Process-library commands of the ``deviation`` CLI: ``process add | list | show | retire``.
+
+Same conventions as the record commands: ``--db URL_OR_PATH``, ``--actor NAME`` (default: the
+OS user), ``--role ROLE`` where a command writes (filing and retiring need process-authority),
+``--json`` prints one JSON object. Exit codes: 0 done; 2 bad input; 3 store error; 4 role refused.
+"""
+
+from __future__ import annotations
+
+from deviation.cli.records import _actor, _caution, _common, _console, _end, _print_json, _role, _store, _usage
+
+
+def _cmd_add(args) -> int:
+    from deviation.records import processes as library
+
+    store = _store(args)
+    filed = library.add_process(store, args.file, actor=_actor(args), role=_role(args), reason=args.reason)
+    entry = library.get_process(store, filed.process_id, filed.version)
+    if args.json:
+        _print_json({"id": filed.process_id, "version": filed.version, "ref": entry.ref,
+                     "new_version": filed.new_version, "scheduled_F_min": filed.scheduled_F_min,
+                     "target_F_min": entry.target_F_min, "warning": filed.warning,
+                     "sha256": entry.sha256, "caution": _caution()})
+        return 0
+    c = _console()
+    what = "filed" if filed.new_version else "already filed"
+    c.print(f"[bold]{entry.process_id}[/bold] version [bold]{entry.version}[/bold] {what}: "
+            f"{entry.product}")
+    c.print(f"  scheduled-process F0 (the process's own model, filed cycle) "
+            f"{filed.scheduled_F_min:.2f} min; filed target {entry.target_F_min:.2f} min")
+    if filed.warning:
+        c.print(f"  [bold yellow]⚠ warning[/bold yellow]: {filed.warning}")
+    if entry.reason:
+        c.print(f"  reason: {entry.reason}")
+    c.print(f"  cases name it as process_ref = \"{entry.process_id}\" (latest) or \"{entry.ref}\"")
+    _end(c)
+    return 0
+
+
+def _cmd_list(args) -> int:
+    from deviation.records import processes as library
+
+    rows = library.list_processes(_store(args), include_retired=args.all, all_versions=args.versions)
+    if args.json:
+        _print_json({"processes": [r.to_dict(with_process=False) for r in rows]})
+        return 0
+    from rich.table import Table
+
+    c = _console()
+    if not rows:
+        c.print("no filed processes" + ("" if args.all else " (active; --all shows retired ones)")
+                + ": a process authority files one with 'deviation process add FILE'")
+        return 0
+    t = Table(title="Filed scheduled processes")
+    for col in ("id", "version", "product", "process", "F0 sched./target [min]", "filed", "state"):
+        t.add_column(col)
+    for r in rows:
+        p = r.process
+        temp = p.get("process_temperature_C")
+        temp_txt = f"{temp:g} °C" if isinstance(temp, (int, float)) else \
+            f"{p.get('process_temperature_F', '?')} °F"
+        F_txt = f"{r.scheduled_F_min:.2f} / {r.target_F_min:.2f}"
+        if r.scheduled_F_min < r.target_F_min:
+            F_txt = f"[yellow]{F_txt} ⚠[/yellow]"
+        state = "active" if r.active else f"retired ({r.retired.reason})"
+        t.add_row(r.process_id, str(r.version), str(r.product), f"{p.get('process_time_min', '?')} min at {temp_txt}",
+                  F_txt, f"{r.filed_utc[:10]} by {r.actor}", state)
+    c.print(t)
+    return 0
+
+
+def _cmd_show(args) -> int:
+    from deviation.records import processes as library
+
+    store = _store(args)
+    entry = library.get_process(store, args.id, args.version)
+    hist = library.history(store, args.id)
+    if args.json:
+        d = entry.to_dict()
+        d["history"] = hist
+        _print_json(d)
+        return 0
+    from rich.panel import Panel
+
+    c = _console()
+    state = "[green]active[/green]" if entry.active else (
+        f"[yellow]retired[/yellow] on {entry.retired.retired_utc[:10]} by {entry.retired.actor}: "
+        f"{entry.retired.reason}")
+    head = (f"{entry.product}\nversion [bold]{entry.version}[/bold] of {entry.latest_version}, "
+            f"filed {entry.filed_utc} by {entry.actor} ({entry.role}); {state}\n"
+            f"scheduled-process F0 {entry.scheduled_F_min:.2f} min, target {entry.target_F_min:.2f} min"
+            + (f"\nreason: {entry.reason}" if entry.reason else "") + f"\nsha256 {entry.sha256}")
+    c.print(Panel(head, title=f"Filed process {entry.process_id}"))
+    for line in _toml_lines(entry.process):
+        c.print(line, markup=False, highlight=False)
+    c.print("versions: " + ", ".join(
+        f"{v['version']} ({v['filed_utc'][:10]}{', retired' if not v['active'] else ''})"
+        for v in hist["versions"]))
+    return 0
+
+
+def _toml_lines(table: dict, prefix: str = "process") -> list[str]:
+    """The table as TOML-like lines (scalars first, then sub-tables and arrays of tables)."""
+    import json
+
+    out = [f"[{prefix}]"]
+    subs = []
+    for k, v in table.items():
+        if isinstance(v, dict):
+            subs.append((k, [v], False))
+        elif isinstance(v, list) and v and all(isinstance(x, dict) for x in v):
+            subs.append((k, v, True))
+        else:
+            out.append(f"{k} = {json.dumps(v, ensure_ascii=False)}")
+    for k, items, array in subs:
+        for item in items:
+            name = f"{prefix}.{k}"
+            lines = _toml_lines(item, name)
+            lines[0] = f"[[{name}]]" if array else f"[{name}]"
+            out += lines
+    return out
+
+
+def _cmd_retire(args) -> int:
+    from deviation.records import processes as library
+
+    store = _store(args)
+    r = library.retire_process(store, args.id, reason=args.reason, actor=_actor(args), role=_role(args))
+    if args.json:
+        _print_json({"id": args.id, "retired": r.to_dict()})
+        return 0
+    c = _console()
+    c.print(f"[bold]{args.id}[/bold] retired (every version up to {r.up_to_version}): {r.reason}")
+    c.print(f"  '{args.id}' no longer resolves; '{args.id}@N' still reads version N for old cases")
+    return 0
+
+
+def register(subparsers) -> None:
+    """Add the ``process`` commands to the ``deviation`` sub-parsers."""
+    top = subparsers.add_parser("process", help="the library of filed scheduled processes")
+    top.set_defaults(handler=_usage(top))
+    sub = top.add_subparsers(dest="process_command", metavar="SUBCOMMAND")
+
+    p = sub.add_parser("add", help="file a scheduled process, or a new version of one (process authority)",
+                       description="File a process file (the [process] table of the case contract with "
+                                   "its sub-tables, as in demo_cases/processes/). Filing an id again adds "
+                                   "the next version; nothing is overwritten.")
+    p.add_argument("file", help="process file (TOML)")
+    p.add_argument("--reason", default=None,
+                   help="why it is filed; required when the model's scheduled-process F0 is below the target")
+    _common(p, acts=True)
+    p.set_defaults(handler=_cmd_add)
+
+    p = sub.add_parser("list", help="filed processes (latest version of each active id)")
+    p.add_argument("--all", action="store_true", help="include retired processes")
+    p.add_argument("--versions", action="store_true", help="every version, not only the latest")
+    _common(p, acts=False)
+    p.set_defaults(handler=_cmd_list)
+
+    p = sub.add_parser("show", help="one filed process, with its versions")
+    p.add_argument("id")
+    p.add_argument("--version", type=int, default=None, metavar="N", help="version (default: the latest)")
+    _common(p, acts=False)
+    p.set_defaults(handler=_cmd_show)
+
+    p = sub.add_parser("retire", help="retire a process id (process authority); history is kept")
+    p.add_argument("id")
+    p.add_argument("--reason", required=True)
+    _common(p, acts=True)
+    p.set_defaults(handler=_cmd_retire)
+
+
+__all__ = ["register"]

@@ -1,0 +1,1 @@
+"""Guidance: rules as data (``rules/*.toml``), their schema, loading and layering, and evaluation."""

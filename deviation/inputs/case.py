@@ -1,0 +1,460 @@
+"""Case files (TOML) read into pydantic models: the filed scheduled process and what happened.
+
+A case holds the filed scheduled process (``[process]`` with its microbiology, container,
+heat-penetration parameters, alternates and critical factors) and the deviation
+(``[deviation]``: lot, retort, initial temperature, the retort record or the events seen).
+
+Temperatures are accepted in °C (``*_C``) or °F (``*_F``) and converted once, here; z in °F
+converts by 5/9 (a difference, not a temperature). Every other part of the tool sees °C only.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Annotated, Any, Literal
+
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    ValidationError,
+    field_validator,
+    model_validator,
+)
+
+from deviation.errors import CaseError
+from deviation.inputs.units import fahrenheit_difference_to_celsius, fahrenheit_to_celsius
+
+# Temperature-valued keys that may be written with _F instead of _C.
+_TEMPERATURES = (
+    "process_temperature",
+    "minimum_initial_temperature",
+    "reference_temperature",
+    "cooling_water_temperature",
+    "come_up_start_temperature",
+    "initial_temperature",
+    "temperature",
+    "reprocess_from_temperature",
+)
+# Temperature differences (z) convert by 5/9 alone.
+_DIFFERENCES = ("z",)
+
+
+def _accept_fahrenheit(data: Any) -> Any:
+    """Turn ``name_F`` keys into ``name_C`` (°C); refuse a key given in both units."""
+    if not isinstance(data, dict):
+        return data
+    data = dict(data)
+    for base in _TEMPERATURES + _DIFFERENCES:
+        key_F, key_C = f"{base}_F", f"{base}_C"
+        if key_F not in data:
+            continue
+        if key_C in data:
+            raise ValueError(f"give {key_C} or {key_F}, not both")
+        value = data.pop(key_F)
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise ValueError(f"{key_F} must be a number, found {value!r}")
+        convert = fahrenheit_difference_to_celsius if base in _DIFFERENCES else fahrenheit_to_celsius
+        data[key_C] = convert(value)
+    return data
+
+
+class _Model(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+    @model_validator(mode="before")
+    @classmethod
+    def _units(cls, data: Any) -> Any:
+        return _accept_fahrenheit(data)
+
+
+Positive = Annotated[float, Field(gt=0)]
+TemperatureC = Annotated[float, Field(ge=-50, le=200)]
+
+
+class Microbiology(_Model):
+    """The organisms the filed lethality is set against."""
+
+    spoilage_D_min: Positive = Field(description="D at Tref of the spoilage organism the target is set for [min]")
+    spores_per_container: Positive = Field(description="Initial spoilage spores per container N0 [-]")
+    botulinum_D_min: Positive = Field(description="D at Tref of C. botulinum [min] (0.21 min, Stumbo 1973)")
+    botulinum_log_reductions_required: Positive = Field(
+        12.0, description="Required botulinum log reductions (12D principle)"
+    )
+
+
+class Container(_Model):
+    """Container shape and inside dimensions [mm]."""
+
+    shape: Literal["cylinder", "brick"]
+    diameter_mm: Positive | None = None
+    height_mm: Positive | None = None
+    length_mm: Positive | None = None
+    width_mm: Positive | None = None
+    thickness_mm: Positive | None = None
+
+    @model_validator(mode="after")
+    def _dimensions(self) -> Container:
+        need = {"cylinder": ("diameter_mm", "height_mm"),
+                "brick": ("length_mm", "width_mm", "thickness_mm")}[self.shape]
+        other = {"cylinder": ("length_mm", "width_mm", "thickness_mm"),
+                 "brick": ("diameter_mm", "height_mm")}[self.shape]
+        missing = [k for k in need if getattr(self, k) is None]
+        if missing:
+            raise ValueError(f"a {self.shape} needs {', '.join(need)}; missing {', '.join(missing)}")
+        extra = [k for k in other if getattr(self, k) is not None]
+        if extra:
+            raise ValueError(f"a {self.shape} takes {', '.join(need)}; remove {', '.join(extra)}")
+        return self
+
+
+class HeatPenetration(_Model):
+    """Heat-penetration parameters of the slowest-heating point (the cold spot)."""
+
+    model: Literal["conduction", "heating-curve", "finite-difference"]
+    fh_min: Positive | None = Field(None, description="Heating rate factor fh [min]")
+    jh: Positive | None = Field(None, description="Heating lag factor jh [-]")
+    fc_min: Positive | None = Field(None, description="Cooling rate factor fc [min]")
+    jc: Positive | None = Field(None, description="Cooling lag factor jc [-]")
+    thermal_diffusivity_m2_s: Positive | None = Field(None, description="Thermal diffusivity [m²/s]")
+    surface_htc_W_m2K: Positive | None = Field(
+        None, description="Surface heat transfer coefficient (finite-difference model) [W/(m²·K)]")
+    thermal_conductivity_W_mK: Positive | None = Field(
+        None, description="Product thermal conductivity, with surface_htc_W_m2K [W/(m·K)]")
+
+    @model_validator(mode="after")
+    def _parameters(self) -> HeatPenetration:
+        if self.model in ("conduction", "finite-difference"):
+            if self.fh_min is None and self.thermal_diffusivity_m2_s is None:
+                raise ValueError(f"model '{self.model}' needs fh_min or thermal_diffusivity_m2_s")
+            if self.fh_min is not None and self.thermal_diffusivity_m2_s is not None:
+                raise ValueError(f"model '{self.model}' takes fh_min or thermal_diffusivity_m2_s, not both")
+        htc, k = self.surface_htc_W_m2K, self.thermal_conductivity_W_mK
+        if (htc is None) != (k is None):
+            raise ValueError("surface_htc_W_m2K and thermal_conductivity_W_mK go together; give both or neither")
+        if htc is not None and self.model != "finite-difference":
+            raise ValueError(f"surface_htc_W_m2K needs model 'finite-difference' (model '{self.model}' "
+                             "holds the surface at the retort temperature)")
+        elif self.model == "heating-curve":
+            missing = [k for k in ("fh_min", "jh") if getattr(self, k) is None]
+            if missing:
+                raise ValueError(f"model 'heating-curve' needs fh_min and jh; missing {', '.join(missing)}")
+            if self.jc is not None and self.fc_min is None:
+                raise ValueError("jc is given without fc_min; give both or neither")
+        return self
+
+
+class AlternateProcess(_Model):
+    """An alternate process filed with the scheduled process (e.g. lower temperature, longer)."""
+
+    process_temperature_C: TemperatureC
+    process_time_min: Positive
+    come_up_time_min: Positive | None = None
+    minimum_initial_temperature_C: TemperatureC | None = None
+
+
+class CriticalFactor(_Model):
+    """A limit filed as a critical factor of the scheduled process."""
+
+    name: str = Field(min_length=1)
+    unit: str = ""
+    min: float | None = None
+    max: float | None = None
+
+    @model_validator(mode="after")
+    def _limits(self) -> CriticalFactor:
+        if self.min is None and self.max is None:
+            raise ValueError(f"critical factor '{self.name}' has neither min nor max")
+        if self.min is not None and self.max is not None and self.min > self.max:
+            raise ValueError(f"critical factor '{self.name}': min {self.min} is above max {self.max}")
+        return self
+
+
+class Process(_Model):
+    """The filed scheduled process."""
+
+    id: str = Field(min_length=1)
+    product: str = Field(min_length=1)
+    retort_type: str = "still steam"
+    process_temperature_C: TemperatureC
+    process_time_min: Positive = Field(description="Hold at process temperature after come-up [min]")
+    come_up_time_min: Annotated[float, Field(ge=0)]
+    minimum_initial_temperature_C: TemperatureC
+    target_F_min: Positive = Field(description="Filed lethality at the cold spot [min]")
+    reference_temperature_C: TemperatureC = 121.1
+    z_C: Positive = 10.0
+    cooling_water_temperature_C: TemperatureC = Field(
+        20.0, description="Cooling water temperature used for the filed cycle [°C] (default 20)"
+    )
+    cooling_time_min: Positive | None = Field(
+        None, description="Cooling duration of the filed cycle [min] (default max(30, 1.5 fh))"
+    )
+    come_up_start_temperature_C: TemperatureC | None = Field(
+        None, description="Retort temperature at steam on [°C] (default: the initial temperature)"
+    )
+    microbiology: Microbiology
+    container: Container
+    heat_penetration: HeatPenetration
+    alternate: list[AlternateProcess] = Field(default_factory=list)
+    critical_factors: list[CriticalFactor] = Field(default_factory=list)
+
+    @field_validator("critical_factors")
+    @classmethod
+    def _unique_factors(cls, factors: list[CriticalFactor]) -> list[CriticalFactor]:
+        seen: set[str] = set()
+        for f in factors:
+            key = f.name.strip().lower()
+            if key in seen:
+                raise ValueError(f"critical factor '{f.name}' is filed twice")
+            seen.add(key)
+        return factors
+
+
+class DeviationEvent(_Model):
+    """Something seen at the retort, laid over the filed cycle when there is no log (or on top of it).
+
+    kinds:
+    - ``temperature-low``: ``start_min``, ``end_min``, ``temperature_C`` (the lowest reading,
+      applied to the whole interval, as a process authority reads the bottom of the trace);
+    - ``hold-time``: the hold actually given, ``process_time_min`` (shorter or longer than filed);
+    - ``come-up-time``: the come-up actually taken, ``come_up_time_min``.
+    Times are minutes from steam on.
+    """
+
+    kind: Literal["temperature-low", "hold-time", "come-up-time"]
+    start_min: Annotated[float, Field(ge=0)] | None = None
+    end_min: Annotated[float, Field(ge=0)] | None = None
+    temperature_C: TemperatureC | None = None
+    process_time_min: Annotated[float, Field(ge=0)] | None = None
+    come_up_time_min: Annotated[float, Field(ge=0)] | None = None
+    note: str = ""
+
+    @model_validator(mode="after")
+    def _fields(self) -> DeviationEvent:
+        need = {"temperature-low": ("start_min", "end_min", "temperature_C"),
+                "hold-time": ("process_time_min",),
+                "come-up-time": ("come_up_time_min",)}[self.kind]
+        missing = [k for k in need if getattr(self, k) is None]
+        if missing:
+            raise ValueError(f"event '{self.kind}' needs {', '.join(need)}; missing {', '.join(missing)}")
+        if self.kind == "temperature-low" and self.end_min <= self.start_min:
+            raise ValueError(f"event 'temperature-low': end_min {self.end_min} must be after start_min {self.start_min}")
+        return self
+
+
+class CriticalFactorReading(_Model):
+    name: str = Field(min_length=1)
+    value: float
+    note: str = ""
+
+
+class UncertaintySpec(_Model):
+    """Spreads of the uncertain inputs for the Monte Carlo estimate (defaults: common practice)."""
+
+    samples: Annotated[int, Field(ge=10, le=100_000)] = 1000
+    seed: int = 20261202
+    fh_relative_sd: Annotated[float, Field(ge=0, le=1)] = Field(
+        0.10, description="Relative standard deviation of fh (or of the diffusivity) [-]")
+    jh_relative_sd: Annotated[float, Field(ge=0, le=1)] = Field(
+        0.10, description="Relative standard deviation of jh (heating-curve model) [-]")
+    initial_temperature_sd_C: Annotated[float, Field(ge=0, le=30)] = Field(
+        1.0, description="Standard deviation of the initial temperature [°C]")
+    spores_log10_sd: Annotated[float, Field(ge=0, le=5)] = Field(
+        0.5, description="Standard deviation of log10(spores per container) [-]")
+
+
+class Deviation(_Model):
+    """What happened to this lot."""
+
+    lot: str = Field(min_length=1)
+    retort_id: str = Field(min_length=1)
+    plant: str = ""
+    date: str = ""
+    lot_size_containers: Annotated[int, Field(ge=1)]
+    initial_temperature_C: TemperatureC
+    retort_log: str | None = None
+    cold_spot_log: str | None = None
+    record_gap_limit_min: Positive = Field(
+        2.0, description="Longest gap between recorder readings accepted [min] (default 2)"
+    )
+    process_ref: str | None = None
+    reprocess_from_temperature_C: TemperatureC | None = None
+    events: list[DeviationEvent] = Field(default_factory=list)
+    critical_factor_readings: list[CriticalFactorReading] = Field(default_factory=list)
+    uncertainty: UncertaintySpec | None = None
+    description: str = ""
+
+
+class Case(_Model):
+    """A deviation case: the filed process and what happened."""
+
+    process: Process
+    deviation: Deviation
+
+    @model_validator(mode="after")
+    def _consistency(self) -> Case:
+        filed = {f.name.strip().lower() for f in self.process.critical_factors}
+        for i, reading in enumerate(self.deviation.critical_factor_readings):
+            if reading.name.strip().lower() not in filed:
+                names = ", ".join(sorted(f.name for f in self.process.critical_factors)) or "none"
+                raise ValueError(
+                    f"deviation.critical_factor_readings[{i}]: '{reading.name}' matches no filed "
+                    f"critical factor (filed: {names})"
+                )
+        return self
+
+
+# ---------------------------------------------------------------------------------------------
+# Reading files
+
+
+@dataclass(frozen=True)
+class LoadedCase:
+    """A case with the contents of the files it names, so nothing later depends on paths."""
+
+    case: Case
+    source: str
+    sha256: str
+    retort_log_text: str | None = None
+    retort_log_source: str | None = None
+    cold_spot_log_text: str | None = None
+    cold_spot_log_source: str | None = None
+
+    def snapshot(self) -> dict:
+        """A JSON-able full snapshot: the case and the log contents (not paths)."""
+        return {
+            "case": self.case.model_dump(mode="json"),
+            "source": self.source,
+            "sha256": self.sha256,
+            "retort_log_text": self.retort_log_text,
+            "retort_log_source": self.retort_log_source,
+            "cold_spot_log_text": self.cold_spot_log_text,
+            "cold_spot_log_source": self.cold_spot_log_source,
+        }
+
+    @classmethod
+    def from_snapshot(cls, snap: dict) -> LoadedCase:
+        try:
+            case = Case.model_validate(snap["case"])
+        except ValidationError as exc:
+            raise CaseError(_format_validation(exc), source=snap.get("source") or "snapshot") from None
+        return cls(
+            case=case,
+            source=snap.get("source", "snapshot"),
+            sha256=snap.get("sha256", ""),
+            retort_log_text=snap.get("retort_log_text"),
+            retort_log_source=snap.get("retort_log_source"),
+            cold_spot_log_text=snap.get("cold_spot_log_text"),
+            cold_spot_log_source=snap.get("cold_spot_log_source"),
+        )
+
+
+def _format_validation(exc: ValidationError) -> str:
+    """One ``field.path: message`` line per problem."""
+    lines = []
+    for err in exc.errors():
+        path = ""
+        for part in err["loc"]:
+            path += f"[{part}]" if isinstance(part, int) else (f".{part}" if path else str(part))
+        msg = err["msg"]
+        if msg.startswith("Value error, "):
+            msg = msg[len("Value error, "):]
+        if err["type"] == "extra_forbidden":
+            msg = "unknown key (not part of the case contract)"
+        elif err["type"] == "missing":
+            msg = "required key is missing"
+        found = err.get("input")
+        if err["type"] not in ("missing", "extra_forbidden", "value_error", "model_type") and not isinstance(found, dict):
+            msg = f"{msg} (found {found!r})"
+        lines.append(f"{path}: {msg}" if path else msg)
+    return "\n".join(lines)
+
+
+def parse_case(data: dict, *, source: str = "case") -> Case:
+    """Validate a case mapping; raise :class:`CaseError` with one line per problem."""
+    try:
+        return Case.model_validate(data)
+    except ValidationError as exc:
+        raise CaseError(_format_validation(exc), source=source) from None
+
+
+def _read_text(path: Path, *, what: str, named_in: str) -> str:
+    try:
+        return path.read_text(encoding="utf-8-sig")
+    except FileNotFoundError:
+        raise CaseError(f"{what} file not found: {path}", source=named_in) from None
+    except UnicodeDecodeError as exc:
+        raise CaseError(f"{what} {path} is not UTF-8 text ({exc.reason} at byte {exc.start})", source=named_in) from None
+    except OSError as exc:
+        raise CaseError(f"{what} {path} cannot be read: {exc.strerror}", source=named_in) from None
+
+
+def load_toml(path: str | Path) -> dict:
+    """Read a TOML file; syntax errors name the file, line and column."""
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise CaseError("file not found", source=str(path)) from None
+    except OSError as exc:
+        raise CaseError(f"cannot be read: {exc.strerror}", source=str(path)) from None
+    try:
+        return tomllib.loads(raw.decode("utf-8-sig"))
+    except UnicodeDecodeError:
+        raise CaseError("not UTF-8 text", source=str(path)) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise CaseError(f"TOML syntax error: {exc}", source=str(path)) from None
+
+
+def load_case(path: str | Path, *, process_resolver=None) -> LoadedCase:
+    """Read a case file and the logs it names (paths relative to the case file).
+
+    ``process_resolver(ref) -> dict`` resolves ``deviation.process_ref`` to a ``[process]``
+    table (from the process library in the store); without one, a reference is an error.
+    """
+    path = Path(path)
+    data = load_toml(path)
+    source = str(path)
+    dev = data.get("deviation") if isinstance(data.get("deviation"), dict) else None
+    if dev is not None and dev.get("process_ref"):
+        if "process" in data:
+            raise CaseError("give either [process] or deviation.process_ref, not both", source=source)
+        if process_resolver is None:
+            raise CaseError(
+                f"deviation.process_ref '{dev['process_ref']}' needs a process library (--db)",
+                source=source,
+            )
+        data = dict(data)
+        data["process"] = process_resolver(dev["process_ref"])
+    case = parse_case(data, source=source)
+    retort_text = retort_src = cold_text = cold_src = None
+    base = path.parent
+    if case.deviation.retort_log:
+        p = Path(case.deviation.retort_log)
+        p = p if p.is_absolute() else base / p
+        retort_text, retort_src = _read_text(p, what="deviation.retort_log", named_in=source), str(p)
+    if case.deviation.cold_spot_log:
+        p = Path(case.deviation.cold_spot_log)
+        p = p if p.is_absolute() else base / p
+        cold_text, cold_src = _read_text(p, what="deviation.cold_spot_log", named_in=source), str(p)
+    digest = hashlib.sha256()
+    digest.update(path.read_bytes())
+    for text in (retort_text, cold_text):
+        digest.update(b"\0" + (text or "").encode())
+    return LoadedCase(
+        case=case,
+        source=source,
+        sha256=digest.hexdigest(),
+        retort_log_text=retort_text,
+        retort_log_source=retort_src,
+        cold_spot_log_text=cold_text,
+        cold_spot_log_source=cold_src,
+    )
+
+
+def case_json_schema() -> dict:
+    """JSON schema of the case file (``deviation schema``)."""
+    return Case.model_json_schema()
