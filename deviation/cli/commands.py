@@ -7,12 +7,13 @@ Every command maps the project's own errors to a one- or two-line message and an
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 from pathlib import Path
 
 from deviation import __version__
+from deviation.cli.common import print_json
 from deviation.errors import DeviationError
+from deviation.records.replay import rule_set_from
 
 COMMANDS = {}
 
@@ -25,13 +26,11 @@ def command(name: str):
 
 
 def _print_json(obj) -> None:
-    sys.stdout.write(json.dumps(obj, indent=None, separators=(",", ":"), allow_nan=False) + "\n")
+    print_json(obj, ensure_ascii=True)
 
 
 def _load_rules(args):
-    from deviation.guidance.rules import load_rule_set
-
-    return load_rule_set([Path(p) for p in (args.rules or [])])
+    return rule_set_from(args.rules)
 
 
 def _add_rules_option(p: argparse.ArgumentParser) -> None:
@@ -103,8 +102,8 @@ def _resolver(args):
 
 @command("evaluate")
 def _evaluate(args) -> int:
-    from deviation.inputs.case import load_case
     from deviation.evaluate import evaluate_case
+    from deviation.inputs.case import load_case
 
     loaded = load_case(args.case, process_resolver=_resolver(args))
     ev = evaluate_case(loaded, conservative=args.conservative, rule_set=_load_rules(args),
@@ -135,8 +134,8 @@ def _rules(args) -> int:
                             f"rule-set sha256 {rs.sha256[:16]}…")
         return 0
     if args.rules_command == "explain":
-        from deviation.inputs.case import load_case
         from deviation.evaluate import evaluate_case
+        from deviation.inputs.case import load_case
 
         rs = _load_rules(args)
         ev = evaluate_case(load_case(args.case), conservative=args.conservative, rule_set=rs, what_if=False)

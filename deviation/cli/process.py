@@ -7,22 +7,32 @@ OS user), ``--role ROLE`` where a command writes (filing and retiring need proce
 
 from __future__ import annotations
 
-from deviation.cli.records import _actor, _caution, _common, _console, _end, _print_json, _role, _store, _usage
+from deviation.cli.common import (
+    actor_of,
+    add_common_options,
+    caution_text,
+    make_console,
+    print_caution,
+    print_json,
+    role_of,
+    store_of,
+    usage_handler,
+)
 
 
 def _cmd_add(args) -> int:
     from deviation.records import processes as library
 
-    store = _store(args)
-    filed = library.add_process(store, args.file, actor=_actor(args), role=_role(args), reason=args.reason)
+    store = store_of(args)
+    filed = library.add_process(store, args.file, actor=actor_of(args), role=role_of(args), reason=args.reason)
     entry = library.get_process(store, filed.process_id, filed.version)
     if args.json:
-        _print_json({"id": filed.process_id, "version": filed.version, "ref": entry.ref,
+        print_json({"id": filed.process_id, "version": filed.version, "ref": entry.ref,
                      "new_version": filed.new_version, "scheduled_F_min": filed.scheduled_F_min,
                      "target_F_min": entry.target_F_min, "warning": filed.warning,
-                     "sha256": entry.sha256, "caution": _caution()})
+                     "sha256": entry.sha256, "caution": caution_text()})
         return 0
-    c = _console()
+    c = make_console()
     what = "filed" if filed.new_version else "already filed"
     c.print(f"[bold]{entry.process_id}[/bold] version [bold]{entry.version}[/bold] {what}: "
             f"{entry.product}")
@@ -33,20 +43,20 @@ def _cmd_add(args) -> int:
     if entry.reason:
         c.print(f"  reason: {entry.reason}")
     c.print(f"  cases name it as process_ref = \"{entry.process_id}\" (latest) or \"{entry.ref}\"")
-    _end(c)
+    print_caution(c)
     return 0
 
 
 def _cmd_list(args) -> int:
     from deviation.records import processes as library
 
-    rows = library.list_processes(_store(args), include_retired=args.all, all_versions=args.versions)
+    rows = library.list_processes(store_of(args), include_retired=args.all, all_versions=args.versions)
     if args.json:
-        _print_json({"processes": [r.to_dict(with_process=False) for r in rows]})
+        print_json({"processes": [r.to_dict(with_process=False) for r in rows]})
         return 0
     from rich.table import Table
 
-    c = _console()
+    c = make_console()
     if not rows:
         c.print("no filed processes" + ("" if args.all else " (active; --all shows retired ones)")
                 + ": a process authority files one with 'deviation process add FILE'")
@@ -72,17 +82,17 @@ def _cmd_list(args) -> int:
 def _cmd_show(args) -> int:
     from deviation.records import processes as library
 
-    store = _store(args)
+    store = store_of(args)
     entry = library.get_process(store, args.id, args.version)
     hist = library.history(store, args.id)
     if args.json:
         d = entry.to_dict()
         d["history"] = hist
-        _print_json(d)
+        print_json(d)
         return 0
     from rich.panel import Panel
 
-    c = _console()
+    c = make_console()
     state = "[green]active[/green]" if entry.active else (
         f"[yellow]retired[/yellow] on {entry.retired.retired_utc[:10]} by {entry.retired.actor}: "
         f"{entry.retired.reason}")
@@ -124,12 +134,12 @@ def _toml_lines(table: dict, prefix: str = "process") -> list[str]:
 def _cmd_retire(args) -> int:
     from deviation.records import processes as library
 
-    store = _store(args)
-    r = library.retire_process(store, args.id, reason=args.reason, actor=_actor(args), role=_role(args))
+    store = store_of(args)
+    r = library.retire_process(store, args.id, reason=args.reason, actor=actor_of(args), role=role_of(args))
     if args.json:
-        _print_json({"id": args.id, "retired": r.to_dict()})
+        print_json({"id": args.id, "retired": r.to_dict()})
         return 0
-    c = _console()
+    c = make_console()
     c.print(f"[bold]{args.id}[/bold] retired (every version up to {r.up_to_version}): {r.reason}")
     c.print(f"  '{args.id}' no longer resolves; '{args.id}@N' still reads version N for old cases")
     return 0
@@ -138,7 +148,7 @@ def _cmd_retire(args) -> int:
 def register(subparsers) -> None:
     """Add the ``process`` commands to the ``deviation`` sub-parsers."""
     top = subparsers.add_parser("process", help="the library of filed scheduled processes")
-    top.set_defaults(handler=_usage(top))
+    top.set_defaults(handler=usage_handler(top))
     sub = top.add_subparsers(dest="process_command", metavar="SUBCOMMAND")
 
     p = sub.add_parser("add", help="file a scheduled process, or a new version of one (process authority)",
@@ -148,25 +158,25 @@ def register(subparsers) -> None:
     p.add_argument("file", help="process file (TOML)")
     p.add_argument("--reason", default=None,
                    help="why it is filed; required when the model's scheduled-process F0 is below the target")
-    _common(p, acts=True)
+    add_common_options(p, acts=True)
     p.set_defaults(handler=_cmd_add)
 
     p = sub.add_parser("list", help="filed processes (latest version of each active id)")
     p.add_argument("--all", action="store_true", help="include retired processes")
     p.add_argument("--versions", action="store_true", help="every version, not only the latest")
-    _common(p, acts=False)
+    add_common_options(p, acts=False)
     p.set_defaults(handler=_cmd_list)
 
     p = sub.add_parser("show", help="one filed process, with its versions")
     p.add_argument("id")
     p.add_argument("--version", type=int, default=None, metavar="N", help="version (default: the latest)")
-    _common(p, acts=False)
+    add_common_options(p, acts=False)
     p.set_defaults(handler=_cmd_show)
 
     p = sub.add_parser("retire", help="retire a process id (process authority); history is kept")
     p.add_argument("id")
     p.add_argument("--reason", required=True)
-    _common(p, acts=True)
+    add_common_options(p, acts=True)
     p.set_defaults(handler=_cmd_retire)
 
 

@@ -8,24 +8,7 @@ from rich.table import Table
 from rich.text import Text
 
 from deviation.evaluate import CAUTION, Evaluation
-
-# Each disposition has a word, a symbol and a style: colour is never the only signal.
-DISPOSITION_LOOK = {
-    "no-deviation": ("NO DEVIATION", "✓", "green"),
-    "covered-by-alternate": ("COVERED BY ALTERNATE PROCESS", "≈", "cyan"),
-    "evaluate": ("HOLD - PROCESS AUTHORITY EVALUATES", "!", "yellow"),
-    "reprocess": ("HOLD - REPROCESS OR EVALUATE", "!!", "dark_orange"),
-    "reprocess-or-destroy": ("HOLD - REPROCESS OR DESTROY", "✗", "bold red"),
-}
-
-
-def fmt_probability(p: float) -> str:
-    """A probability per container, readable at a glance (1 in N)."""
-    if p <= 0.0:
-        return "< 1e-300"
-    if p >= 0.5:
-        return f"{p:.3f}"
-    return f"{p:.2e} (1 in {1.0 / p:,.0f})"
+from deviation.guidance.wording import DISPOSITION_LOOK, fmt_probability
 
 
 def guidance_panel(ev: Evaluation) -> Panel:

@@ -65,9 +65,9 @@ def _open_store(db):
 
 
 def _from_record(args, rule_set):
-    from deviation.inputs.case import LoadedCase
     from deviation.errors import StoreError
     from deviation.evaluate import evaluate_case
+    from deviation.inputs.case import LoadedCase
 
     store = _open_store(args.db)
     try:
@@ -124,9 +124,9 @@ def run_report(args) -> int:
 def _run_one(args) -> int:
     """One report: returns the exit code (errors raise DeviationError)."""
     from deviation import report
-    from deviation.inputs.case import load_case
     from deviation.evaluate import evaluate_case
     from deviation.guidance.rules import load_rule_set
+    from deviation.inputs.case import load_case
 
     fmt = _format(args)
     if fmt == "pdf" and args.output == "-":

@@ -12,7 +12,8 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from deviation.cli.records import _actor, _common, _role, _rule_set
+from deviation.cli.common import actor_of, add_common_options, role_of
+from deviation.records.replay import rule_set_from
 from deviation.errors import DeviationError
 
 
@@ -124,10 +125,10 @@ class _Human:
 
 
 def _cmd_watch(args) -> int:
-    from deviation.records.store import open_store
     from deviation.live.watch import LogFollower, Watch, event_json
+    from deviation.records.store import open_store
 
-    actor, role = _actor(args), (_role(args) or "operator")
+    actor, role = actor_of(args), (role_of(args) or "operator")
     store = None if args.no_record else open_store(args.db)
     process, resolved = _process(args, store)
     if args.json:
@@ -141,7 +142,7 @@ def _cmd_watch(args) -> int:
         watch = Watch(process, lot=args.lot, retort_id=args.retort, initial_temperature_C=args.initial_temperature_C,
                       lot_size_containers=args.lot_size, store=store, actor=actor, role=role,
                       process_ref=resolved, source=str(args.log), record_gap_limit_min=args.record_gap_limit_min,
-                      conservative=args.conservative, rule_set=_rule_set(args.rules) if args.rules else None,
+                      conservative=args.conservative, rule_set=rule_set_from(args.rules) if args.rules else None,
                       on_event=out)
         if human is not None:
             human.start()
@@ -182,7 +183,7 @@ def register(subparsers) -> None:
     p.add_argument("--rules", action="append", metavar="FILE_OR_DIR",
                    help="a plant rule file or folder laid over the default rules (repeatable)")
     p.add_argument("--no-record", action="store_true", help="do not start a deviation record (no store)")
-    _common(p, acts=True)
+    add_common_options(p, acts=True)
     p.set_defaults(handler=_cmd_watch)
 
 

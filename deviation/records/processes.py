@@ -30,6 +30,7 @@ from pydantic import ValidationError
 
 from deviation import __version__
 from deviation.errors import CaseError, PermissionDenied, StoreError
+from deviation.records.chains import canonical_json, utc_now
 
 FILE_ACTION = "file or retire a scheduled process"
 FILER_ROLE = "process-authority"
@@ -107,7 +108,6 @@ def ensure_library(store) -> None:
     """
     if store in _ready:
         return
-    from deviation.records.store import utc_now
 
     with store._read() as conn:
         current = _library_version(conn)
@@ -313,7 +313,6 @@ def add_process(store, process: dict | str | os.PathLike, *, actor: str, role: s
         for a process that breaks the case contract, or a scheduled-F shortfall with no reason.
     """
     from deviation.evaluate import scheduled_F_min
-    from deviation.records.store import canonical_json, utc_now
 
     role = _check_filer(actor, role)
     if isinstance(process, dict):
@@ -366,7 +365,6 @@ def retire_process(store, process_id: str, *, reason: str, actor: str, role: str
     ``"ID@N"`` still resolves (old cases and records stay readable); filing the id again makes
     it active again. Needs the process-authority role and a reason.
     """
-    from deviation.records.store import utc_now
 
     role = _check_filer(actor, role)
     if not isinstance(reason, str) or not reason.strip():

@@ -125,7 +125,7 @@ def _g(x: float | None, unit: str = "") -> str:
 
 
 def _probability(p: float) -> str:
-    from deviation.cli.render import fmt_probability
+    from deviation.guidance.wording import fmt_probability
 
     return fmt_probability(p)
 
@@ -510,7 +510,7 @@ def _history_table(ev) -> list[dict[str, str]]:
 
 
 def _guidance(ev, rule_set) -> dict[str, Any]:
-    from deviation.cli.render import DISPOSITION_LOOK
+    from deviation.guidance.wording import DISPOSITION_LOOK
 
     g = ev.guidance or {}
     disp = g.get("disposition", "evaluate")

@@ -27,16 +27,15 @@ import pytest
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
-from deviation.records.store import (  # noqa: E402
-    BUNDLE_FORMAT,
-    BUNDLE_VERSION,
+from deviation.records.bundles import BUNDLE_FORMAT, BUNDLE_VERSION  # noqa: E402
+from deviation.records.chains import (  # noqa: E402
     GENESIS_HASH,
     canonical_json,
     event_hash,
     new_record_id,
-    open_store,
     utc_now,
 )
+from deviation.records.store import open_store  # noqa: E402
 
 DEMO = REPO / "demo_cases"
 

@@ -12,7 +12,7 @@ import pytest
 from deviation.records import processes as library
 from deviation.inputs.case import Process, load_toml
 from deviation.cli import main
-from deviation.cli.records import replay
+from deviation.records.replay import replay
 from deviation.errors import RecordError
 from deviation.records.store import open_store
 from deviation.live.watch import LogFollower, LogRotated, LogTruncated, Watch

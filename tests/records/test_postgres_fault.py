@@ -27,7 +27,8 @@ ENV = dict(os.environ, PYTHONPATH=str(REPO) + os.pathsep + os.environ.get("PYTHO
 
 WRITER = r"""
 import sys, time
-from deviation.records.store import StoreUnavailable, open_store
+from deviation.records.backends import StoreUnavailable
+from deviation.records.store import open_store
 url, rid, n, keyed = sys.argv[1], sys.argv[2], int(sys.argv[3]), sys.argv[4] == "keyed"
 s = open_store(url)
 worst = 0.0

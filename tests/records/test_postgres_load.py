@@ -126,7 +126,7 @@ def check_load(store, figures: dict) -> None:
     # Who wrote what, read without the (large) payloads; verify() below reads those.
     import sqlalchemy as sa
 
-    from deviation.records.store import events_t
+    from deviation.records.schema import events_t
 
     with store.engine.connect() as conn:
         rows = conn.execute(sa.select(events_t.c.record_id, events_t.c.seq, events_t.c.kind,

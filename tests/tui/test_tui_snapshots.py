@@ -21,8 +21,12 @@ def app_factory(tmp_path, monkeypatch):
     monkeypatch.delenv("DEVIATION_ROLE", raising=False)
     ids, ticks = count(1), count(0)
     monkeypatch.setattr("deviation.records.store.new_record_id", lambda: f"DR-SNAP{next(ids):05d}")
-    monkeypatch.setattr("deviation.records.store.utc_now",
-                        lambda: f"2026-11-20T08:{next(ticks) % 60:02d}:00.000000Z")
+    def fixed_utc():
+        return f"2026-11-20T08:{next(ticks) % 60:02d}:00.000000Z"
+
+    # Every module of the store that stamps times (schema, records, the process library).
+    for module in ("backends", "schema", "store", "processes", "bundles"):
+        monkeypatch.setattr(f"deviation.records.{module}.utc_now", fixed_utc)
 
     def make(role="operator", actor="olga"):
         return build_app(db=tmp_path / "demo.db", demo=True, actor=actor, role=role, clock=lambda: NOW)

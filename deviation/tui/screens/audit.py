@@ -18,7 +18,7 @@ from textual.widgets import DataTable, Footer, Static
 
 from deviation.errors import DeviationError
 from deviation.tui.screens.dialogs import ExportReportDialog, FileChoice
-from deviation.tui.screens.floor import StatusLine
+from deviation.tui.widgets.status import StatusLine
 from deviation.tui.widgets.comparison import ComparisonTable
 from deviation.tui.widgets.timeline import Timeline
 
@@ -26,11 +26,11 @@ from deviation.tui.widgets.timeline import Timeline
 def replay_record(store, record_id: str) -> dict:
     """Recompute a record's latest evaluation; the stored and the new one, and what differs.
 
-    The comparison is :func:`deviation.cli.records.replay_item` (the CLI's ``replay``), so the
+    The comparison is :func:`deviation.records.replay.replay_item` (the CLI's ``replay``), so the
     verdict and its reasons read the same here and in ``deviation replay``.
     """
     from deviation.inputs.case import LoadedCase
-    from deviation.cli.records import compare_evaluations, replay_item
+    from deviation.records.replay import compare_evaluations, replay_item
     from deviation.evaluate import default_rule_set, evaluate_case
 
     rs = default_rule_set()

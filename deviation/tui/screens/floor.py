@@ -23,7 +23,6 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import Screen
-from deviation.tui.widgets.steady_input import SteadyInput
 from textual.widgets import Footer, Input, Label, Select, Static
 from textual.worker import get_current_worker
 
@@ -46,6 +45,8 @@ from deviation.tui.sources import FiledProcess, filed_processes
 from deviation.tui.widgets.guidance import CautionBar, GuidancePanel
 from deviation.tui.widgets.plots import CyclePlots
 from deviation.tui.widgets.results import FloorFigures, ResultsPanel
+from deviation.tui.widgets.status import StatusLine
+from deviation.tui.widgets.steady_input import SteadyInput
 
 # (field, label, placeholder) of the form, in order.
 FORM = (
@@ -55,12 +56,6 @@ FORM = (
     ("initial_temperature", "Initial °C", "initial temperature °C"),
     ("cycle_start", "Steam on", "HH:MM (clock)"),
 )
-
-
-class StatusLine(Static):
-    """One line: the screen, who is at the terminal, the store."""
-
-    DEFAULT_CSS = "StatusLine { height: 1; background: $panel; padding: 0 1; }"
 
 
 def so_far(ev, now_min: float | None) -> float | None:
@@ -525,8 +520,8 @@ class FloorScreen(Screen):
         self.save_draft()
 
     def action_save(self) -> None:
-        from deviation.records import roles
         from deviation.evaluate import evaluate_case
+        from deviation.records import roles
 
         ctx = self.app.ctx
         proc = self._process()

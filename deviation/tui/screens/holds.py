@@ -17,7 +17,7 @@ from textual.widgets import DataTable, Footer, Input, Static
 
 from deviation.errors import DeviationError
 from deviation.tui.screens.actions import run_record_action
-from deviation.tui.screens.floor import StatusLine
+from deviation.tui.widgets.status import StatusLine
 from deviation.tui.widgets.results import disposition_look
 
 STATE_LOOK = {

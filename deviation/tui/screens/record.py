@@ -16,7 +16,7 @@ from textual.widgets import Footer, Static
 from deviation.records import roles
 from deviation.errors import DeviationError
 from deviation.tui.screens.actions import run_record_action
-from deviation.tui.screens.floor import StatusLine
+from deviation.tui.widgets.status import StatusLine
 from deviation.tui.widgets.results import disposition_text
 from deviation.tui.widgets.timeline import Timeline
 
@@ -107,22 +107,20 @@ class RecordScreen(Screen):
 
     def action_evaluate(self) -> None:
         """Re-evaluate the latest snapshot and append ``evaluated`` (role checked as in the CLI)."""
-        from types import SimpleNamespace
-
-        from deviation.cli.records import _eval_summary, _evaluate_into
+        from deviation.records.replay import evaluate_into, evaluation_summary
 
         ctx = self.app.ctx
         try:
             role = roles.check_role(ctx.actor, ctx.role, "evaluate")
             view = ctx.store.record(self.record_id)
-            before = _eval_summary(view.evaluation)
+            before = evaluation_summary(view.evaluation)
             # The CLI's defaults: not conservative, the built-in rule set.
-            ev = _evaluate_into(ctx.store, self.record_id, view.snapshot, view.snapshot_seq,
-                                SimpleNamespace(conservative=False, rules=None), ctx.actor, role)
+            ev = evaluate_into(ctx.store, self.record_id, view.snapshot, view.snapshot_seq,
+                               conservative=False, rule_paths=None, actor=ctx.actor, role=role)
         except DeviationError as exc:
             self.notify(str(exc), title="Refused", severity="error")
             return
-        after = _eval_summary(ev)
+        after = evaluation_summary(ev)
         was = (f" (was F0 {before['delivered_F_min']:.3f} min, {before['disposition']})"
                if before and before.get("delivered_F_min") is not None else "")
         F = after.get("delivered_F_min")

@@ -5,7 +5,7 @@ from __future__ import annotations
 from rich.text import Text
 from textual.widgets import DataTable
 
-from deviation.cli.render import fmt_probability
+from deviation.guidance.wording import fmt_probability
 
 # (label, key in the evaluation JSON, how to show it)
 ROWS = (

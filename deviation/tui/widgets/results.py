@@ -11,7 +11,7 @@ from textual.message import Message
 from textual.widgets import Static
 
 from deviation.evaluate import Evaluation
-from deviation.cli.render import DISPOSITION_LOOK
+from deviation.guidance.wording import DISPOSITION_LOOK
 
 
 def disposition_look(disposition: str | None) -> tuple[str, str, str]:

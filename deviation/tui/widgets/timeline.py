@@ -5,7 +5,7 @@ from __future__ import annotations
 from rich.text import Text
 from textual.widgets import DataTable
 
-from deviation.records.store import Event, describe_event
+from deviation.records.events import Event, describe_event
 
 # Each kind has its own symbol (colour is never the only signal).
 KIND_LOOK = {

@@ -1,0 +1,80 @@
+"""Helpers every command group shares: JSON and rich output, who is acting, the store, options."""
+
+from __future__ import annotations
+
+import argparse
+import getpass
+import json
+import os
+import sys
+from typing import Any, Callable
+
+from deviation.errors import DeviationError
+
+
+def caution_text() -> str:
+    try:
+        from deviation.evaluate import CAUTION
+    except Exception:  # noqa: BLE001 - the engine may not import; the caution must still show
+        return ("This is guidance, not a release. The process authority decides, in writing, what "
+                "becomes of the lot; local regulations govern.")
+    return CAUTION
+
+
+def print_json(obj: Any, *, ensure_ascii: bool = False) -> None:
+    """One JSON object on one line of stdout (NaN refused)."""
+    sys.stdout.write(json.dumps(obj, separators=(",", ":"), ensure_ascii=ensure_ascii, allow_nan=False) + "\n")
+
+
+def make_console():
+    from rich.console import Console
+
+    return Console()
+
+
+def print_caution(console) -> None:
+    console.print(f"[dim]{caution_text()}[/dim]")
+
+
+def actor_of(args) -> str:
+    if args.actor:
+        return args.actor
+    try:
+        return getpass.getuser()
+    except Exception:  # noqa: BLE001
+        raise DeviationError("no OS user name found; give --actor NAME", source="--actor") from None
+
+
+def role_of(args) -> str | None:
+    return args.role or os.environ.get("DEVIATION_ROLE") or None
+
+
+def store_of(args):
+    from deviation.records.store import open_store
+
+    return open_store(args.db)
+
+
+
+def add_common_options(p: argparse.ArgumentParser, *, acts: bool) -> None:
+    p.add_argument("--db", metavar="URL_OR_PATH", default=None,
+                   help="record store: an SQLite file or a database URL (default: DEVIATION_DB, "
+                        "else deviation.db in the user data directory)")
+    p.add_argument("--actor", metavar="NAME", default=None, help="who acts (default: the OS user)")
+    if acts:
+        p.add_argument("--role", metavar="ROLE", default=None,
+                       help="operator, supervisor, process-authority or auditor (default: DEVIATION_ROLE)")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+
+
+def add_rules_option(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--rules", action="append", metavar="FILE_OR_DIR",
+                   help="a plant rule file or folder laid over the default rules (repeatable)")
+
+
+def usage_handler(parser: argparse.ArgumentParser) -> Callable[[argparse.Namespace], int]:
+    def handler(args) -> int:
+        parser.print_help(sys.stderr)
+        return 2
+
+    return handler
