@@ -8,335 +8,45 @@ Internal units: °C and minutes.
 from __future__ import annotations
 
 import functools
-import math
-from dataclasses import dataclass, replace
-from typing import Any, Callable
+from dataclasses import replace
+from typing import Any
 
 import numpy as np
-from pydantic import BaseModel, Field
-from scipy.optimize import brentq
 
 from deviation import ENGINE_VERSION
+from deviation.errors import CaseError, RecordError
+from deviation.evaluate.cold_spot import (
+    ColdSpotModel,
+    Delivered,
+    cold_spot_model,
+    cooling_time_min,
+    deliver,
+    filed_profile,
+    scheduled_F_min,
+)
+from deviation.evaluate.output import ColdSpot, CycleOut, Evaluation, FlagOut, LowIntervalOut
+from deviation.evaluate.whatif import (
+    continue_as_filed,
+    extension_to_target,
+    gap_worst_case_F,
+    monte_carlo,
+    reprocess_as_filed,
+)
 from deviation.inputs import logs as prof
 from deviation.inputs.case import Case, LoadedCase, Process
-from deviation.errors import CaseError, ModelError, RecordError
-from deviation.physics.heating import conduction, heating_curve
-from deviation.physics.heating.superposition import superpose
 from deviation.physics.lethality import general_method, lethal_rate
-from deviation.physics.uncertainty import lognormal_factors, sample_F, summarise
 from deviation.physics.spoilage import (
     expected_nonsterile_containers,
     log_reductions,
     nonsterile_probability,
 )
 
-CAUTION = (
-    "This is guidance, not a release. The process authority decides, in writing, what becomes "
-    "of the lot; local regulations govern."
-)
-
-# The finest and coarsest grid the cold-spot prediction runs on [min]: the recorder's own
-# interval within these bounds (piecewise-linear superposition is exact between grid points).
-_FINEST_STEP_MIN = 1.0 / 60.0
-_COARSEST_STEP_MIN = 0.1
-# Longest extension searched for before giving up [min].
-_EXTENSION_LIMIT_MIN = 600.0
-
-
 # ---------------------------------------------------------------------------------------------
 # Output model
 
 
-class FlagOut(BaseModel):
-    code: str
-    message: str
-    start_min: float | None = None
-    end_min: float | None = None
-    value: float | None = None
-
-
-class ColdSpot(BaseModel):
-    time_min: list[float]
-    retort_C: list[float]
-    temperature_C: list[float]
-    lethal_rate: list[float]
-    cumulative_F_min: list[float]
-    source: str = Field(description="'measured' or the model used")
-
-
-class LowIntervalOut(BaseModel):
-    start_min: float
-    end_min: float
-    lowest_C: float
-    degree_minutes_below: float
-
-
-class CycleOut(BaseModel):
-    hold_start_min: float | None
-    hold_end_min: float | None
-    hold_duration_min: float | None
-    come_up_min: float | None
-    lowest_during_hold_C: float | None
-    max_gap_min: float
-    running: bool
-    low_intervals: list[LowIntervalOut]
-    retort_source: str
-    retort_sha256: str | None
-
-
-class Evaluation(BaseModel):
-    """Everything one evaluation found; JSON keys are a contract (see README)."""
-
-    engine_version: str
-    process_id: str
-    product: str
-    lot: str
-    retort_id: str
-    model: str
-    conservative: bool
-    delivered_F_min: float
-    scheduled_F_min: float
-    target_F_min: float
-    F_margin_min: float
-    projected_F_min: float | None
-    extension_to_target_min: float | None
-    extension_reason: str | None
-    reprocess_F_min: float | None
-    total_F_with_reprocess_min: float | None
-    reprocess: dict[str, Any] | None
-    uncertainty: dict[str, Any] | None
-    spoilage_probability: float
-    target_spoilage_probability: float
-    scheduled_spoilage_probability: float
-    expected_nonsterile_containers: float
-    botulinum_log_reductions: float
-    botulinum_log_reductions_required: float
-    lethality_established: bool
-    lethality_fully_established: bool
-    covered_by_alternate: bool
-    alternate_met: list[dict[str, float]]
-    critical_factors: list[dict[str, Any]]
-    flags: list[FlagOut]
-    cycle: CycleOut
-    facts: dict[str, float | bool | str | None]
-    guidance: dict[str, Any] | None
-    caution: str = CAUTION
-    cold_spot: ColdSpot
-    case_sha256: str
-
-
 # ---------------------------------------------------------------------------------------------
 # Cold-spot models
-
-
-@dataclass(frozen=True)
-class ColdSpotModel:
-    """Step responses (fraction unaccomplished) of the cold spot for one process.
-
-    ``fd`` is set for the finite-difference model: ``fd(time_min, retort_C, initial_C)`` returns
-    the solver's result (cold spot and final field); ``heating`` is then ``None``.
-    """
-
-    name: str
-    heating: Callable[[np.ndarray], np.ndarray] | None
-    cooling: Callable[[np.ndarray], np.ndarray] | None
-    fh_min: float
-    fd: Callable[..., Any] | None = None
-
-
-def _finite_difference_model(process: Process) -> ColdSpotModel:
-    """Teixeira et al. (1969) finite differences, surface at the retort or with a Biot boundary."""
-    from deviation.physics.heating import finite_difference as fdm
-
-    hp, box = process.heat_penetration, process.container
-    h_over_k = (hp.surface_htc_W_m2K / hp.thermal_conductivity_W_mK) if hp.surface_htc_W_m2K else None
-    if box.shape == "cylinder":
-        radius_m, height_m = box.diameter_mm / 2000.0, box.height_mm / 1000.0
-        rate_per_alpha = conduction.decay_rate_cylinder_s(1.0, radius_m, height_m, h_over_k)
-        # 31 x 41 nodes: F within 0.3% of the series for the demo cans (26 x 33 gave -0.5%).
-        dims = dict(radius_m=radius_m, height_m=height_m, nr=31, nz=41)
-        solver = fdm.cylinder_fd
-    else:
-        dims = dict(length_m=box.length_mm / 1000.0, width_m=box.width_mm / 1000.0,
-                    thickness_m=box.thickness_mm / 1000.0)
-        rate_per_alpha = conduction.decay_rate_brick_s(1.0, *dims.values(), h_over_k)
-        solver = fdm.brick_fd
-    # fh = ln10 / (alpha * first-mode rate): with a finite h the eigenvalues come from Bi.
-    alpha = hp.thermal_diffusivity_m2_s or math.log(10.0) / (hp.fh_min * 60.0 * rate_per_alpha)
-    fh = hp.fh_min or math.log(10.0) / (alpha * rate_per_alpha) / 60.0
-
-    def run(time_min, retort_C, initial_C):
-        return solver(time_min, retort_C, initial_C=initial_C, diffusivity_m2_s=alpha,
-                      surface_htc_W_m2K=hp.surface_htc_W_m2K,
-                      thermal_conductivity_W_mK=hp.thermal_conductivity_W_mK, **dims)
-
-    return ColdSpotModel("finite-difference", None, None, float(fh), fd=run)
-
-
-def cold_spot_model(process: Process) -> ColdSpotModel:
-    """Build the heat-penetration model named in ``[process.heat_penetration]``."""
-    hp, box = process.heat_penetration, process.container
-    if hp.model == "finite-difference":
-        return _finite_difference_model(process)
-    if hp.model == "conduction":
-        if box.shape == "cylinder":
-            radius_m, height_m = box.diameter_mm / 2000.0, box.height_mm / 1000.0
-            alpha = hp.thermal_diffusivity_m2_s or conduction.diffusivity_from_fh_cylinder(
-                hp.fh_min, radius_m, height_m)
-            fh = hp.fh_min or conduction.fh_from_diffusivity_cylinder(alpha, radius_m, height_m)
-            fn = functools.partial(conduction.cylinder_centre_unaccomplished,
-                                   diffusivity_m2_s=alpha, radius_m=radius_m, height_m=height_m)
-        else:
-            dims = box.length_mm / 1000.0, box.width_mm / 1000.0, box.thickness_mm / 1000.0
-            alpha = hp.thermal_diffusivity_m2_s or conduction.diffusivity_from_fh_brick(hp.fh_min, *dims)
-            fh = hp.fh_min or conduction.fh_from_diffusivity_brick(alpha, *dims)
-            fn = functools.partial(conduction.brick_centre_unaccomplished, diffusivity_m2_s=alpha,
-                                   length_m=dims[0], width_m=dims[1], thickness_m=dims[2])
-        return ColdSpotModel("conduction", fn, None, float(fh))
-    if hp.model == "heating-curve":
-        heat = functools.partial(heating_curve.step_unaccomplished, fh_min=hp.fh_min, jh=hp.jh)
-        cool = None
-        if hp.fc_min is not None:
-            # jc defaults to 1 (no cooling lag): the cold spot then credits the least cooling lethality.
-            cool = functools.partial(heating_curve.step_unaccomplished, fh_min=hp.fc_min, jh=hp.jc or 1.0)
-        return ColdSpotModel("heating-curve", heat, cool, float(hp.fh_min))
-    raise ModelError(f"unknown heat-penetration model {hp.model!r}", source="process.heat_penetration.model")
-
-
-def _grid_step(time_min: np.ndarray) -> float:
-    dt = float(np.median(np.diff(time_min))) if time_min.size > 1 else _COARSEST_STEP_MIN
-    return min(max(dt, _FINEST_STEP_MIN), _COARSEST_STEP_MIN)
-
-
-@dataclass(frozen=True)
-class Delivered:
-    time_min: np.ndarray
-    retort_C: np.ndarray
-    cold_spot_C: np.ndarray
-    cumulative_F_min: np.ndarray
-    F_min: float
-    final_field_C: np.ndarray | None = None  # finite-difference model only
-
-
-def _grid(profile: prof.RetortProfile, conservative: bool, cooling_start_min: float | None):
-    """The uniform grid (from 0) the models run on, the retort on it, and steam-off on the grid."""
-    t0 = float(profile.time_min[0])
-    shifted = replace(profile, time_min=profile.time_min - t0)
-    step = _grid_step(shifted.time_min)
-    grid, retort = prof.resample_uniform(shifted, step, conservative=conservative)
-    start = None
-    if cooling_start_min is not None:
-        # Snap steam-off down to the grid, so the segment in which the retort starts to fall
-        # responds with the cooling kernel wherever steam-off falls inside it.
-        start = math.floor((cooling_start_min - t0) / step + 1e-9) * step
-    return t0, grid, retort, start
-
-
-def deliver(profile: prof.RetortProfile, initial_C: float, process: Process, model: ColdSpotModel,
-            *, conservative: bool, cooling_start_min: float | None) -> Delivered:
-    """Predict the cold spot for a retort profile and integrate its lethality (General Method)."""
-    t0, grid, retort, start = _grid(profile, conservative, cooling_start_min)
-    field = None
-    if model.fd is not None:
-        result = model.fd(grid, retort, initial_C)
-        cold, field = result.cold_spot_C, result.final_field_C
-    else:
-        cooling_kw = {}
-        if model.cooling is not None and start is not None:
-            cooling_kw = dict(cooling_unaccomplished=model.cooling, cooling_start_min=start)
-        cold = superpose(grid, retort, initial_C, model.heating, **cooling_kw)
-    F, cum = general_method(grid, cold, process.reference_temperature_C, process.z_C,
-                            conservative=conservative)
-    return Delivered(grid + t0, retort, cold, cum, float(F), field)
-
-
-def _filed_profile(process: Process, *, start_C: float, come_up_min: float, hold_min: float,
-                   cooling_min: float) -> prof.RetortProfile:
-    return prof.filed_cycle(
-        process_temperature_C=process.process_temperature_C,
-        come_up_time_min=come_up_min,
-        process_time_min=hold_min,
-        start_temperature_C=start_C,
-        cooling_water_temperature_C=process.cooling_water_temperature_C,
-        cooling_time_min=cooling_min,
-    )
-
-
-def cooling_time_min(process: Process, model: ColdSpotModel) -> float:
-    """Cooling duration credited for a filed cycle [min]: as filed, else max(30, 1.5 fh) (common practice)."""
-    return float(process.cooling_time_min or max(30.0, 1.5 * model.fh_min))
-
-
-def scheduled_profile(process: Process, model: ColdSpotModel) -> prof.RetortProfile:
-    """The filed cycle: come-up ramp, hold at process temperature, cooling step."""
-    start = process.come_up_start_temperature_C
-    return _filed_profile(
-        process,
-        start_C=process.minimum_initial_temperature_C if start is None else start,
-        come_up_min=process.come_up_time_min,
-        hold_min=process.process_time_min,
-        cooling_min=cooling_time_min(process, model),
-    )
-
-
-@functools.lru_cache(maxsize=128)
-def _scheduled_F_cached(process_json: str, conservative: bool) -> float:
-    process = Process.model_validate_json(process_json)
-    model = cold_spot_model(process)
-    return deliver(scheduled_profile(process, model), process.minimum_initial_temperature_C, process, model,
-                   conservative=conservative,
-                   cooling_start_min=process.come_up_time_min + process.process_time_min).F_min
-
-
-def scheduled_F_min(process: Process, *, conservative: bool = False) -> float:
-    """F [min] the model gives for the filed cycle as scheduled (cached per process)."""
-    return _scheduled_F_cached(process.model_dump_json(), conservative)
-
-
-def _continue_as_filed(profile: prof.RetortProfile, process: Process, analysis: prof.CycleAnalysis,
-                       model: ColdSpotModel, extra_hold_min: float = 0.0) -> tuple[prof.RetortProfile, float]:
-    """The record so far, then the rest of the filed cycle from its last point.
-
-    Returns the extended profile and the time cooling starts [min].
-    """
-    t, T = profile.time_min, profile.temperature_C
-    t_end, T_end = float(t[-1]), float(T[-1])
-    PT = process.process_temperature_C
-    parts_t, parts_T = [t], [T]
-    now = t_end
-    if analysis.hold_start_min is None:
-        # Still coming up: ramp to process temperature over what is left of the filed come-up
-        # (at least one minute), then the whole hold.
-        ramp = max(process.come_up_time_min - t_end, 1.0)
-        now += ramp
-        parts_t.append([now]); parts_T.append([PT])
-        hold_left = process.process_time_min
-    else:
-        if T_end < PT:
-            now += 1.0 / 60.0
-            parts_t.append([now]); parts_T.append([PT])
-        hold_left = max(process.process_time_min - (t_end - analysis.hold_start_min), 0.0)
-    hold_end = now + hold_left + extra_hold_min
-    if hold_end > now:
-        parts_t.append([hold_end]); parts_T.append([PT])
-    cool = cooling_time_min(process, model)
-    parts_t.append([hold_end + 1.0 / 60.0, hold_end + cool])
-    parts_T.append([process.cooling_water_temperature_C] * 2)
-    ext = prof.RetortProfile(np.concatenate([np.asarray(p, float) for p in parts_t]),
-                             np.concatenate([np.asarray(p, float) for p in parts_T]),
-                             profile.source + " + rest as filed", None)
-    return ext, hold_end
-
-
-def _insert_hold(profile: prof.RetortProfile, at_min: float, extra_min: float, PT: float) -> prof.RetortProfile:
-    """Insert ``extra_min`` minutes at process temperature at time ``at_min`` (before cooling)."""
-    t, T = profile.time_min, profile.temperature_C
-    before = t <= at_min
-    T_at = float(np.interp(at_min, t, T))
-    new_t = np.concatenate([t[before], [at_min, at_min + extra_min], t[~before] + extra_min])
-    new_T = np.concatenate([T[before], [max(T_at, PT), PT], T[~before]])
-    keep = np.concatenate([[True], np.diff(new_t) > 0])
-    return prof.RetortProfile(new_t[keep], new_T[keep], profile.source + " + extension", None)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -373,7 +83,7 @@ def build_retort_profile(loaded: LoadedCase, model: ColdSpotModel) -> prof.Retor
             elif ev.kind == "hold-time":
                 hold = ev.process_time_min
         start = process.come_up_start_temperature_C
-        profile = _filed_profile(process, start_C=dev.initial_temperature_C if start is None else start,
+        profile = filed_profile(process, start_C=dev.initial_temperature_C if start is None else start,
                                  come_up_min=come_up, hold_min=hold,
                                  cooling_min=cooling_time_min(process, model))
         profile = replace(profile, source="filed cycle + events" if events else "filed cycle")
@@ -465,30 +175,6 @@ def _spoilage(F: float, process: Process) -> float:
     return float(nonsterile_probability(F, m.spoilage_D_min, m.spores_per_container))
 
 
-def _gap_worst_case_F(profile: prof.RetortProfile, analysis: prof.CycleAnalysis, limit: float,
-                      loaded: LoadedCase, model: ColdSpotModel, conservative: bool) -> float | None:
-    """F when every over-limit gap inside the hold is read as no heat at all (cooling water)."""
-    t, T = profile.time_min, profile.temperature_C
-    if analysis.hold_start_min is None:
-        return None
-    gaps = np.flatnonzero(np.diff(t) > limit)
-    hold_end = analysis.hold_end_min if analysis.hold_end_min is not None else t[-1]
-    gaps = [i for i in gaps if t[i + 1] > analysis.hold_start_min and t[i] < hold_end]
-    if not gaps:
-        return None
-    cold_C = loaded.case.process.cooling_water_temperature_C
-    new_t, new_T, last = [], [], 0
-    for i in gaps:
-        new_t += [t[last:i + 1], [t[i] + 1e-3, t[i + 1] - 1e-3]]
-        new_T += [T[last:i + 1], [cold_C, cold_C]]
-        last = i + 1
-    new_t.append(t[last:]); new_T.append(T[last:])
-    worst = prof.RetortProfile(np.concatenate(new_t), np.concatenate(new_T), profile.source, None)
-    d = deliver(worst, loaded.case.deviation.initial_temperature_C, loaded.case.process, model,
-                conservative=conservative, cooling_start_min=analysis.hold_end_min)
-    return d.F_min
-
-
 def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=None,
                   what_if: bool = True, uncertainty: bool | None = None) -> Evaluation:
     """Evaluate one deviation case.
@@ -561,13 +247,13 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     running = _is_running(profile, analysis)
     projected = delivered.F_min
     if running and source != "measured":
-        ext_profile, cool_at = _continue_as_filed(profile, process, analysis, model)
+        ext_profile, cool_at = continue_as_filed(profile, process, analysis, model)
         projected = deliver(ext_profile, dev.initial_temperature_C, process, model,
                             conservative=conservative, cooling_start_min=cool_at).F_min
-    extension, reason = (_extension(loaded, profile, analysis, model, delivered, conservative, source,
+    extension, reason = (extension_to_target(loaded, profile, analysis, model, delivered, conservative, source,
                                     running) if what_if else (None, "not computed"))
 
-    reprocess = (_reprocess(loaded, model, delivered.F_min, conservative, delivered.final_field_C)
+    reprocess = (reprocess_as_filed(loaded, model, delivered.F_min, conservative, delivered.final_field_C)
                  if what_if else None)
     if uncertainty is None:
         uncertainty = dev.uncertainty is not None
@@ -575,7 +261,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     if uncertainty:
         from deviation.inputs.case import UncertaintySpec
 
-        mc = _monte_carlo(loaded, profile, analysis, model, dev.uncertainty or UncertaintySpec(),
+        mc = monte_carlo(loaded, profile, analysis, model, dev.uncertainty or UncertaintySpec(),
                           conservative, source, delivered.F_min)
 
     # Lethality established / fully established.
@@ -585,7 +271,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     established = True
     worst_gap_F = None
     if gap_over and source != "measured":
-        worst_gap_F = _gap_worst_case_F(profile, analysis, dev.record_gap_limit_min, loaded, model, conservative)
+        worst_gap_F = gap_worst_case_F(profile, analysis, dev.record_gap_limit_min, loaded, model, conservative)
         if worst_gap_F is not None and (log_reductions(worst_gap_F, micro.botulinum_D_min)
                                         < micro.botulinum_log_reductions_required):
             established = False
@@ -702,127 +388,6 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     )
 
 
-def _extension(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.CycleAnalysis,
-               model: ColdSpotModel, delivered: Delivered, conservative: bool,
-               source: str, running: bool) -> tuple[float | None, str | None]:
-    """Least extra minutes at process temperature, added before cooling, that reach the target F.
-
-    Root finding (Brent's method) on F(extra) - target; F grows with extra time at process
-    temperature, so the root is unique.
-    """
-    process, dev = loaded.case.process, loaded.case.deviation
-    target = process.target_F_min
-    if source == "measured":
-        return None, "the cold spot is measured, not predicted: no model to extend"
-    if analysis.hold_start_min is None and not running:
-        return None, "the record never reached the process temperature: there is no hold to extend"
-
-    def F_with(extra: float) -> float:
-        if running:
-            ext, cool_at = _continue_as_filed(profile, process, analysis, model, extra_hold_min=extra)
-        else:
-            at = analysis.hold_end_min if analysis.hold_end_min is not None else float(profile.time_min[-1])
-            ext, cool_at = _insert_hold(profile, at, extra, process.process_temperature_C), at + extra
-            if extra == 0.0:
-                ext = profile
-        return deliver(ext, dev.initial_temperature_C, process, model, conservative=conservative,
-                       cooling_start_min=cool_at).F_min - target
-
-    # With nothing added, a finished cycle's F is the delivered F already computed.
-    base = F_with(0.0) if running else delivered.F_min - target
-    if base >= 0.0:
-        return 0.0, None
-    hi = 5.0
-    while F_with(hi) < 0.0:
-        hi *= 2.0
-        if hi > _EXTENSION_LIMIT_MIN:
-            return None, f"no extension up to {_EXTENSION_LIMIT_MIN:.0f} min reaches the target"
-    root = brentq(F_with, 0.0, hi, xtol=0.01)
-    # Round up to the next 0.1 min: never report less time than the target needs.
-    return math.ceil(root * 10.0 - 1e-9) / 10.0, None
-
-
-def _monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.CycleAnalysis,
-                 model: ColdSpotModel, spec, conservative: bool, source: str,
-                 delivered_F: float) -> dict[str, Any]:
-    """Monte Carlo over fh (or diffusivity), jh, initial temperature and spores per container."""
-    process, dev = loaded.case.process, loaded.case.deviation
-    micro = process.microbiology
-    n = spec.samples
-    rng = np.random.default_rng(spec.seed)
-    out: dict[str, Any] = {"samples": n, "seed": spec.seed, "spreads": spec.model_dump(exclude={"samples", "seed"})}
-    if source == "measured":
-        out["reason"] = "the cold spot is measured: only the spore load is uncertain"
-        F = np.full(n, delivered_F)
-    else:
-        fh_factor = lognormal_factors(rng, spec.fh_relative_sd, n)
-        jh_factor = lognormal_factors(rng, spec.jh_relative_sd, n)
-        initial = dev.initial_temperature_C + spec.initial_temperature_sd_C * rng.standard_normal(n)
-        t0, grid, retort, start = _grid(profile, conservative, analysis.hold_end_min)
-        hp = process.heat_penetration
-        if model.name == "heating-curve":
-            fh = hp.fh_min * fh_factor
-            jh = hp.jh * jh_factor
-
-            def step(t2, rows):
-                return np.minimum(1.0, jh[rows, None] * 10.0 ** (-t2 / fh[rows, None]))
-        else:
-            # Conduction: the step response depends on alpha*t only (at a fixed Biot number), and
-            # fh is proportional to 1/alpha, so a sample with fh scaled by f has S(t / f).
-            # Tabulate once, interpolate.
-            t_tab = np.linspace(0.0, grid[-1] / fh_factor.min() + 1.0, 8192)
-            if model.fd is not None:  # the solver's own unit-step response
-                S_tab = 1.0 - np.asarray(model.fd(t_tab, np.ones_like(t_tab), 0.0).cold_spot_C, float)
-            else:
-                S_tab = np.asarray(model.heating(t_tab), float)
-            scale = 1.0 / fh_factor
-
-            def step(t2, rows):
-                return np.interp(t2 * scale[rows, None], t_tab, S_tab)
-        cooling = model.cooling if start is not None else None
-        F = sample_F(grid, retort, initial, step, reference_temperature_C=process.reference_temperature_C,
-                     z_C=process.z_C, conservative=conservative, cooling_step=cooling,
-                     cooling_start_min=start if cooling is not None else None)
-    spores = micro.spores_per_container * 10.0 ** (spec.spores_log10_sd * rng.standard_normal(n))
-    p = nonsterile_probability(F, micro.spoilage_D_min, spores)
-    out.update(summarise(F, np.asarray(p), target_F_min=process.target_F_min,
-                         botulinum_D_min=micro.botulinum_D_min))
-    return out
-
-
-def _reprocess(loaded: LoadedCase, model: ColdSpotModel, delivered_F: float, conservative: bool,
-               final_field_C: np.ndarray | None = None) -> dict[str, Any]:
-    """F a full reprocess as filed adds, from a uniform product temperature, and the total.
-
-    F values at the same Tref and z add. The reprocess starts from ``reprocess_from_temperature_C``
-    when given, else from the filed minimum initial temperature (a reprocess must start from a
-    re-established initial temperature), or from the field the finite-difference model left.
-    """
-    process, dev = loaded.case.process, loaded.case.deviation
-    start_C = dev.reprocess_from_temperature_C
-    initial = start_C
-    basis = "deviation.reprocess_from_temperature_C"
-    if start_C is None and final_field_C is not None:
-        # The finite-difference model knows the uneven field the lot was left with.
-        initial = final_field_C
-        start_C = float(np.min(final_field_C))
-        basis = "the field left by the finite-difference model at the end of the record (coldest node shown)"
-    elif start_C is None:
-        # From the filed minimum initial temperature a reprocess as filed is the filed cycle.
-        F = scheduled_F_min(process, conservative=conservative)
-        return {"reprocess_F_min": F, "total_F_with_reprocess_min": delivered_F + F,
-                "reprocess_from_temperature_C": process.minimum_initial_temperature_C,
-                "reprocess_from": "the filed minimum initial temperature"}
-    come_up_start = process.come_up_start_temperature_C
-    profile = _filed_profile(process, start_C=start_C if come_up_start is None else come_up_start,
-                             come_up_min=process.come_up_time_min, hold_min=process.process_time_min,
-                             cooling_min=cooling_time_min(process, model))
-    F = deliver(profile, initial, process, model, conservative=conservative,
-                cooling_start_min=process.come_up_time_min + process.process_time_min).F_min
-    return {"reprocess_F_min": F, "total_F_with_reprocess_min": delivered_F + F,
-            "reprocess_from_temperature_C": start_C, "reprocess_from": basis}
-
-
 def evaluate_snapshot(snapshot: dict, **kw) -> Evaluation:
     """Evaluate a stored snapshot (replay): no file is read."""
     return evaluate_case(LoadedCase.from_snapshot(snapshot), **kw)
@@ -837,5 +402,5 @@ def check_record(loaded: LoadedCase) -> None:
         _parse_cached(loaded.cold_spot_log_text, loaded.cold_spot_log_source or "cold-spot log", "cold-spot")
 
 
-__all__ = ["Evaluation", "evaluate_case", "evaluate_snapshot", "cold_spot_model", "CAUTION",
-           "RecordError", "check_record"]
+__all__ = ["evaluate_case", "evaluate_snapshot",
+           "check_record", "default_rule_set"]

@@ -37,7 +37,7 @@ def test_zero_spread_reproduces_the_deterministic_F(name):
 @pytest.mark.parametrize("name,factor", [("chili_temperature_drop", 1.15), ("peas_steam_loss", 0.9)])
 def test_a_shifted_fh_sample_matches_a_deterministic_run(name, factor, monkeypatch):
     """Force every sample to fh x factor: the batch F equals evaluate_case with that fh."""
-    import deviation.evaluate.pipeline as E
+    import deviation.evaluate.whatif as E
 
     monkeypatch.setattr(E, "lognormal_factors", lambda rng, sd, n: np.full(n, factor if sd == 0.1 else 1.0))
     loaded = _with_uncertainty(name, fh_relative_sd=0.1, jh_relative_sd=0.2, initial_temperature_sd_C=0,

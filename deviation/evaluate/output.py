@@ -1,0 +1,90 @@
+"""What an evaluation returns: the JSON contract every face reads (see the README for the keys)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from pydantic import BaseModel, Field
+
+CAUTION = (
+    "This is guidance, not a release. The process authority decides, in writing, what becomes "
+    "of the lot; local regulations govern."
+)
+
+
+class FlagOut(BaseModel):
+    code: str
+    message: str
+    start_min: float | None = None
+    end_min: float | None = None
+    value: float | None = None
+
+
+class ColdSpot(BaseModel):
+    time_min: list[float]
+    retort_C: list[float]
+    temperature_C: list[float]
+    lethal_rate: list[float]
+    cumulative_F_min: list[float]
+    source: str = Field(description="'measured' or the model used")
+
+
+class LowIntervalOut(BaseModel):
+    start_min: float
+    end_min: float
+    lowest_C: float
+    degree_minutes_below: float
+
+
+class CycleOut(BaseModel):
+    hold_start_min: float | None
+    hold_end_min: float | None
+    hold_duration_min: float | None
+    come_up_min: float | None
+    lowest_during_hold_C: float | None
+    max_gap_min: float
+    running: bool
+    low_intervals: list[LowIntervalOut]
+    retort_source: str
+    retort_sha256: str | None
+
+
+class Evaluation(BaseModel):
+    """Everything one evaluation found; JSON keys are a contract (see README)."""
+
+    engine_version: str
+    process_id: str
+    product: str
+    lot: str
+    retort_id: str
+    model: str
+    conservative: bool
+    delivered_F_min: float
+    scheduled_F_min: float
+    target_F_min: float
+    F_margin_min: float
+    projected_F_min: float | None
+    extension_to_target_min: float | None
+    extension_reason: str | None
+    reprocess_F_min: float | None
+    total_F_with_reprocess_min: float | None
+    reprocess: dict[str, Any] | None
+    uncertainty: dict[str, Any] | None
+    spoilage_probability: float
+    target_spoilage_probability: float
+    scheduled_spoilage_probability: float
+    expected_nonsterile_containers: float
+    botulinum_log_reductions: float
+    botulinum_log_reductions_required: float
+    lethality_established: bool
+    lethality_fully_established: bool
+    covered_by_alternate: bool
+    alternate_met: list[dict[str, float]]
+    critical_factors: list[dict[str, Any]]
+    flags: list[FlagOut]
+    cycle: CycleOut
+    facts: dict[str, float | bool | str | None]
+    guidance: dict[str, Any] | None
+    caution: str = CAUTION
+    cold_spot: ColdSpot
+    case_sha256: str

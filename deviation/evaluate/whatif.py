@@ -1,0 +1,218 @@
+"""What-if answers: the rest of a running cycle as filed, the least extension that reaches the
+target, a full reprocess, the worst case across record gaps, and the Monte Carlo spread."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+from scipy.optimize import brentq
+
+from deviation.evaluate.cold_spot import (
+    ColdSpotModel,
+    Delivered,
+    cooling_time_min,
+    deliver,
+    filed_profile,
+    model_grid,
+    scheduled_F_min,
+)
+from deviation.inputs import logs as prof
+from deviation.inputs.case import LoadedCase, Process
+from deviation.physics.spoilage import nonsterile_probability
+from deviation.physics.uncertainty import lognormal_factors, sample_F, summarise
+
+# Longest extension searched for before giving up [min].
+_EXTENSION_LIMIT_MIN = 600.0
+
+
+def continue_as_filed(profile: prof.RetortProfile, process: Process, analysis: prof.CycleAnalysis,
+                       model: ColdSpotModel, extra_hold_min: float = 0.0) -> tuple[prof.RetortProfile, float]:
+    """The record so far, then the rest of the filed cycle from its last point.
+
+    Returns the extended profile and the time cooling starts [min].
+    """
+    t, T = profile.time_min, profile.temperature_C
+    t_end, T_end = float(t[-1]), float(T[-1])
+    PT = process.process_temperature_C
+    parts_t, parts_T = [t], [T]
+    now = t_end
+    if analysis.hold_start_min is None:
+        # Still coming up: ramp to process temperature over what is left of the filed come-up
+        # (at least one minute), then the whole hold.
+        ramp = max(process.come_up_time_min - t_end, 1.0)
+        now += ramp
+        parts_t.append([now]); parts_T.append([PT])
+        hold_left = process.process_time_min
+    else:
+        if T_end < PT:
+            now += 1.0 / 60.0
+            parts_t.append([now]); parts_T.append([PT])
+        hold_left = max(process.process_time_min - (t_end - analysis.hold_start_min), 0.0)
+    hold_end = now + hold_left + extra_hold_min
+    if hold_end > now:
+        parts_t.append([hold_end]); parts_T.append([PT])
+    cool = cooling_time_min(process, model)
+    parts_t.append([hold_end + 1.0 / 60.0, hold_end + cool])
+    parts_T.append([process.cooling_water_temperature_C] * 2)
+    ext = prof.RetortProfile(np.concatenate([np.asarray(p, float) for p in parts_t]),
+                             np.concatenate([np.asarray(p, float) for p in parts_T]),
+                             profile.source + " + rest as filed", None)
+    return ext, hold_end
+
+
+def insert_hold(profile: prof.RetortProfile, at_min: float, extra_min: float, PT: float) -> prof.RetortProfile:
+    """Insert ``extra_min`` minutes at process temperature at time ``at_min`` (before cooling)."""
+    t, T = profile.time_min, profile.temperature_C
+    before = t <= at_min
+    T_at = float(np.interp(at_min, t, T))
+    new_t = np.concatenate([t[before], [at_min, at_min + extra_min], t[~before] + extra_min])
+    new_T = np.concatenate([T[before], [max(T_at, PT), PT], T[~before]])
+    keep = np.concatenate([[True], np.diff(new_t) > 0])
+    return prof.RetortProfile(new_t[keep], new_T[keep], profile.source + " + extension", None)
+
+
+def gap_worst_case_F(profile: prof.RetortProfile, analysis: prof.CycleAnalysis, limit: float,
+                      loaded: LoadedCase, model: ColdSpotModel, conservative: bool) -> float | None:
+    """F when every over-limit gap inside the hold is read as no heat at all (cooling water)."""
+    t, T = profile.time_min, profile.temperature_C
+    if analysis.hold_start_min is None:
+        return None
+    gaps = np.flatnonzero(np.diff(t) > limit)
+    hold_end = analysis.hold_end_min if analysis.hold_end_min is not None else t[-1]
+    gaps = [i for i in gaps if t[i + 1] > analysis.hold_start_min and t[i] < hold_end]
+    if not gaps:
+        return None
+    cold_C = loaded.case.process.cooling_water_temperature_C
+    new_t, new_T, last = [], [], 0
+    for i in gaps:
+        new_t += [t[last:i + 1], [t[i] + 1e-3, t[i + 1] - 1e-3]]
+        new_T += [T[last:i + 1], [cold_C, cold_C]]
+        last = i + 1
+    new_t.append(t[last:]); new_T.append(T[last:])
+    worst = prof.RetortProfile(np.concatenate(new_t), np.concatenate(new_T), profile.source, None)
+    d = deliver(worst, loaded.case.deviation.initial_temperature_C, loaded.case.process, model,
+                conservative=conservative, cooling_start_min=analysis.hold_end_min)
+    return d.F_min
+
+
+def extension_to_target(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.CycleAnalysis,
+               model: ColdSpotModel, delivered: Delivered, conservative: bool,
+               source: str, running: bool) -> tuple[float | None, str | None]:
+    """Least extra minutes at process temperature, added before cooling, that reach the target F.
+
+    Root finding (Brent's method) on F(extra) - target; F grows with extra time at process
+    temperature, so the root is unique.
+    """
+    process, dev = loaded.case.process, loaded.case.deviation
+    target = process.target_F_min
+    if source == "measured":
+        return None, "the cold spot is measured, not predicted: no model to extend"
+    if analysis.hold_start_min is None and not running:
+        return None, "the record never reached the process temperature: there is no hold to extend"
+
+    def F_with(extra: float) -> float:
+        if running:
+            ext, cool_at = continue_as_filed(profile, process, analysis, model, extra_hold_min=extra)
+        else:
+            at = analysis.hold_end_min if analysis.hold_end_min is not None else float(profile.time_min[-1])
+            ext, cool_at = insert_hold(profile, at, extra, process.process_temperature_C), at + extra
+            if extra == 0.0:
+                ext = profile
+        return deliver(ext, dev.initial_temperature_C, process, model, conservative=conservative,
+                       cooling_start_min=cool_at).F_min - target
+
+    # With nothing added, a finished cycle's F is the delivered F already computed.
+    base = F_with(0.0) if running else delivered.F_min - target
+    if base >= 0.0:
+        return 0.0, None
+    hi = 5.0
+    while F_with(hi) < 0.0:
+        hi *= 2.0
+        if hi > _EXTENSION_LIMIT_MIN:
+            return None, f"no extension up to {_EXTENSION_LIMIT_MIN:.0f} min reaches the target"
+    root = brentq(F_with, 0.0, hi, xtol=0.01)
+    # Round up to the next 0.1 min: never report less time than the target needs.
+    return math.ceil(root * 10.0 - 1e-9) / 10.0, None
+
+
+def monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.CycleAnalysis,
+                 model: ColdSpotModel, spec, conservative: bool, source: str,
+                 delivered_F: float) -> dict[str, Any]:
+    """Monte Carlo over fh (or diffusivity), jh, initial temperature and spores per container."""
+    process, dev = loaded.case.process, loaded.case.deviation
+    micro = process.microbiology
+    n = spec.samples
+    rng = np.random.default_rng(spec.seed)
+    out: dict[str, Any] = {"samples": n, "seed": spec.seed, "spreads": spec.model_dump(exclude={"samples", "seed"})}
+    if source == "measured":
+        out["reason"] = "the cold spot is measured: only the spore load is uncertain"
+        F = np.full(n, delivered_F)
+    else:
+        fh_factor = lognormal_factors(rng, spec.fh_relative_sd, n)
+        jh_factor = lognormal_factors(rng, spec.jh_relative_sd, n)
+        initial = dev.initial_temperature_C + spec.initial_temperature_sd_C * rng.standard_normal(n)
+        t0, grid, retort, start = model_grid(profile, conservative, analysis.hold_end_min)
+        hp = process.heat_penetration
+        if model.name == "heating-curve":
+            fh = hp.fh_min * fh_factor
+            jh = hp.jh * jh_factor
+
+            def step(t2, rows):
+                return np.minimum(1.0, jh[rows, None] * 10.0 ** (-t2 / fh[rows, None]))
+        else:
+            # Conduction: the step response depends on alpha*t only (at a fixed Biot number), and
+            # fh is proportional to 1/alpha, so a sample with fh scaled by f has S(t / f).
+            # Tabulate once, interpolate.
+            t_tab = np.linspace(0.0, grid[-1] / fh_factor.min() + 1.0, 8192)
+            if model.fd is not None:  # the solver's own unit-step response
+                S_tab = 1.0 - np.asarray(model.fd(t_tab, np.ones_like(t_tab), 0.0).cold_spot_C, float)
+            else:
+                S_tab = np.asarray(model.heating(t_tab), float)
+            scale = 1.0 / fh_factor
+
+            def step(t2, rows):
+                return np.interp(t2 * scale[rows, None], t_tab, S_tab)
+        cooling = model.cooling if start is not None else None
+        F = sample_F(grid, retort, initial, step, reference_temperature_C=process.reference_temperature_C,
+                     z_C=process.z_C, conservative=conservative, cooling_step=cooling,
+                     cooling_start_min=start if cooling is not None else None)
+    spores = micro.spores_per_container * 10.0 ** (spec.spores_log10_sd * rng.standard_normal(n))
+    p = nonsterile_probability(F, micro.spoilage_D_min, spores)
+    out.update(summarise(F, np.asarray(p), target_F_min=process.target_F_min,
+                         botulinum_D_min=micro.botulinum_D_min))
+    return out
+
+
+def reprocess_as_filed(loaded: LoadedCase, model: ColdSpotModel, delivered_F: float, conservative: bool,
+               final_field_C: np.ndarray | None = None) -> dict[str, Any]:
+    """F a full reprocess as filed adds, from a uniform product temperature, and the total.
+
+    F values at the same Tref and z add. The reprocess starts from ``reprocess_from_temperature_C``
+    when given, else from the filed minimum initial temperature (a reprocess must start from a
+    re-established initial temperature), or from the field the finite-difference model left.
+    """
+    process, dev = loaded.case.process, loaded.case.deviation
+    start_C = dev.reprocess_from_temperature_C
+    initial = start_C
+    basis = "deviation.reprocess_from_temperature_C"
+    if start_C is None and final_field_C is not None:
+        # The finite-difference model knows the uneven field the lot was left with.
+        initial = final_field_C
+        start_C = float(np.min(final_field_C))
+        basis = "the field left by the finite-difference model at the end of the record (coldest node shown)"
+    elif start_C is None:
+        # From the filed minimum initial temperature a reprocess as filed is the filed cycle.
+        F = scheduled_F_min(process, conservative=conservative)
+        return {"reprocess_F_min": F, "total_F_with_reprocess_min": delivered_F + F,
+                "reprocess_from_temperature_C": process.minimum_initial_temperature_C,
+                "reprocess_from": "the filed minimum initial temperature"}
+    come_up_start = process.come_up_start_temperature_C
+    profile = filed_profile(process, start_C=start_C if come_up_start is None else come_up_start,
+                             come_up_min=process.come_up_time_min, hold_min=process.process_time_min,
+                             cooling_min=cooling_time_min(process, model))
+    F = deliver(profile, initial, process, model, conservative=conservative,
+                cooling_start_min=process.come_up_time_min + process.process_time_min).F_min
+    return {"reprocess_F_min": F, "total_F_with_reprocess_min": delivered_F + F,
+            "reprocess_from_temperature_C": start_C, "reprocess_from": basis}
