@@ -122,7 +122,7 @@ def _rules(args) -> int:
     from rich.console import Console
     from rich.table import Table
 
-    from deviation.guidance import rules as R
+    from deviation import guidance as R
 
     if args.rules_command == "check":
         rs = R.check_rule_file(Path(args.file)) if args.file else R.load_rule_set([])

@@ -125,7 +125,7 @@ def _run_one(args) -> int:
     """One report: returns the exit code (errors raise DeviationError)."""
     from deviation import report
     from deviation.evaluate import evaluate_case
-    from deviation.guidance.rules import load_rule_set
+    from deviation.guidance import load_rule_set
     from deviation.inputs.case import load_case
 
     fmt = _format(args)

@@ -62,7 +62,7 @@ def _parse_cached(text: str, source: str, kind: str) -> prof.RetortProfile:
 @functools.lru_cache(maxsize=1)
 def default_rule_set():
     """The shipped rules, read once per process."""
-    from deviation.guidance import rules as rules_mod
+    from deviation import guidance as rules_mod
 
     return rules_mod.load_rule_set([])
 
@@ -323,7 +323,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     }
     guidance = None
     if rule_set is not False:
-        from deviation.guidance import rules as rules_mod  # the rules layer sits after the core
+        from deviation import guidance as rules_mod  # the rules layer sits after the core
 
         rs = rule_set if rule_set is not None else default_rule_set()
         guidance = rules_mod.evaluate_guidance(rs, facts, [f.code for f in flags]).model_dump(mode="json")

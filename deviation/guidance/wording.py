@@ -3,7 +3,6 @@
 
 from __future__ import annotations
 
-
 # Each disposition has a word, a symbol and a style: colour is never the only signal.
 DISPOSITION_LOOK = {
     "no-deviation": ("NO DEVIATION", "✓", "green"),

@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import Any, Callable, Sequence
 
 from deviation.errors import DeviationError
-from deviation.guidance.rules import load_rule_set
+from deviation.guidance import load_rule_set
 
 # Replay tolerances: F values (and other minute-valued results) agree within
 # rel 1e-6 + abs 1e-9 min; probabilities, counts and log reductions within rel 1e-6 + abs 1e-12

@@ -45,7 +45,7 @@ def demo_evaluations() -> list[tuple[dict, dict]]:
     from deviation.inputs.case import load_case
     from deviation.errors import DeviationError
     from deviation.evaluate import evaluate_case
-    from deviation.guidance.rules import load_rule_set
+    from deviation.guidance import load_rule_set
 
     rs = load_rule_set([])
     out = []

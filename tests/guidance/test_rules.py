@@ -8,7 +8,7 @@ from pathlib import Path
 import pytest
 
 from deviation.errors import RulesError
-from deviation.guidance.rules import (
+from deviation.guidance import (
     BOOLEAN_METRICS,
     DISPOSITIONS,
     FLAG_CODES,

@@ -8,7 +8,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from deviation.guidance.rules import (
+from deviation.guidance import (
     BOOLEAN_METRICS,
     DEVIATION_FLAG_CODES,
     DISPOSITIONS,

@@ -30,7 +30,7 @@ WORKER = r"""
 import json, os, sys, time
 from deviation.inputs.case import load_case
 from deviation.evaluate import evaluate_snapshot
-from deviation.guidance.rules import load_rule_set
+from deviation.guidance import load_rule_set
 from deviation.records.store import open_store
 
 url, worker, n, case, go, out = sys.argv[1], int(sys.argv[2]), int(sys.argv[3]), sys.argv[4], sys.argv[5], sys.argv[6]

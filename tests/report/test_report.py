@@ -27,7 +27,7 @@ from deviation.inputs.case import load_case  # noqa: E402
 from deviation.errors import DeviationError  # noqa: E402
 from deviation.evaluate import CAUTION, evaluate_case  # noqa: E402
 from deviation.guidance.wording import DISPOSITION_LOOK  # noqa: E402
-from deviation.guidance.rules import load_rule_set  # noqa: E402
+from deviation.guidance import load_rule_set  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO_CASES = sorted((ROOT / "demo_cases").glob("*.toml"))
