@@ -15,6 +15,11 @@ CORE_MODULES = [
     "deviation.physics.uncertainty",
     "deviation.physics.lethality",
     "deviation.physics.spoilage",
+    "deviation.physics.ball_formula",
+    "deviation.physics.calibration",
+    "deviation.physics.calibration.semilog",
+    "deviation.physics.calibration.least_squares",
+    "deviation.physics.calibration.fit",
 ]
 FORBIDDEN = ["pydantic", "rich", "textual", "sqlalchemy"]
 REPO_ROOT = Path(__file__).resolve().parents[1]

@@ -16,6 +16,7 @@ import json
 import sys
 
 from deviation.errors import DeviationError
+from deviation.physics.calibration.results import FitReport
 
 _CYLINDER = ("diameter_mm", "height_mm")
 _BRICK = ("length_mm", "width_mm", "thickness_mm")
@@ -71,7 +72,8 @@ def _container(args):
 
 def run(args) -> int:
     """Handler of ``deviation fit``: returns the exit code."""
-    from deviation.physics.calibration import fit_all, paste_table, read_heat_penetration_csv
+    from deviation.inputs.heat_penetration import read_heat_penetration_csv
+    from deviation.physics.calibration import fit_all
 
     container = _container(args)
     data = read_heat_penetration_csv(args.file, source=args.file)
@@ -179,3 +181,88 @@ def main(argv=None) -> int:  # pragma: no cover - the lead wires ``fit`` into de
     except DeviationError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return exc.exit_code
+
+
+def _g(value: float, digits: int = 4) -> str:
+    """A number for TOML with ``digits`` significant figures (always a float literal)."""
+    text = f"{value:.{digits}g}"
+    if "e" in text:
+        mantissa, exponent = text.split("e")
+        if "." not in mantissa:
+            mantissa += ".0"
+        return f"{mantissa}e{int(exponent)}"
+    return text if "." in text else text + ".0"
+
+
+def paste_table(report: FitReport, *, method: str = "least-squares") -> str:
+    """A ``[process.heat_penetration]`` TOML table for the chosen thermocouple.
+
+    Parameters
+    ----------
+    report : FitReport
+        From :func:`fit_all`
+    method : {"least-squares", "semilog"}
+        Which values go in the table. The default, least squares of the heating-curve model to
+        the actual retort record, gives the parameters with which this tool's own cold-spot model
+        (the same step response superposed over a retort record) reproduces the test; Ball's
+        semi-log values are given in a comment. Falls back to the semi-log values when the least
+        squares did not converge.
+
+    Returns
+    -------
+    str
+        Comment lines (source, thermocouple, fit quality), the table with ``model``, ``fh_min``,
+        ``jh`` and, with a cooling phase, ``fc_min``, ``jc``; with container dimensions a
+        commented ``thermal_diffusivity_m2_s`` line for ``model = "conduction"``.
+    """
+    if method not in ("least-squares", "semilog"):
+        raise ValueError(f"method {method!r}; expected 'least-squares' or 'semilog'")
+    tc = report.chosen_fit()
+    semi, cool, hc = tc.semilog, tc.cooling, tc.heating_curve
+    use_ls = method == "least-squares" and hc is not None and hc.converged
+    lines = [
+        f"# from heat penetration test {report.source}, thermocouple {tc.name} "
+        "(slowest heating: largest fh)",
+        f"# semi-log (Ball): fh {semi.fh_min:.2f} min, jh {semi.jh:.3f}, R² {semi.r_squared:.5f}, "
+        f"RMS {semi.rms_residual_C:.3f} °C, {semi.window_start_min:g}-{semi.window_end_min:g} "
+        f"min ({semi.n_points} readings)",
+    ]
+    if cool is not None:
+        lines.append(
+            f"# semi-log cooling: fc {cool.fc_min:.2f} min, jc {cool.jc:.3f}, "
+            f"R² {cool.r_squared:.5f}, RMS {cool.rms_residual_C:.3f} °C"
+        )
+    if hc is not None:
+        pe = ", ".join(f"{k} {_g(v)} ± {_g(hc.standard_errors[k], 2)}"
+                       for k, v in hc.parameters.items())
+        lines.append(f"# least squares (heating-curve model on the retort record): {pe}, "
+                     f"RMS {hc.rms_residual_C:.3f} °C")
+    lines.append(f"# values below: {'least squares' if use_ls else 'semi-log'}")
+    lines.append("[process.heat_penetration]")
+    lines.append('model = "heating-curve"')
+    if use_ls:
+        values = {k: hc.parameters[k] for k in ("fh_min", "jh", "fc_min", "jc")
+                  if k in hc.parameters}
+    else:
+        values = {"fh_min": semi.fh_min, "jh": semi.jh}
+        if cool is not None:
+            values.update(fc_min=cool.fc_min, jc=cool.jc)
+    for key, value in values.items():
+        lines.append(f"{key} = {_g(value)}")
+    if report.container is not None:
+        alpha = None
+        basis = ""
+        if tc.conduction is not None and tc.conduction.converged:
+            alpha = tc.conduction.parameters["thermal_diffusivity_m2_s"]
+            basis = (f"least squares of the conduction model, RMS "
+                     f"{tc.conduction.rms_residual_C:.3f} °C")
+            if hc is not None and tc.conduction.rms_residual_C > 2.0 * hc.rms_residual_C:
+                basis += " - a poor fit: not a conduction-heating product?"
+        elif tc.diffusivity_from_fh_m2_s is not None:
+            alpha = tc.diffusivity_from_fh_m2_s
+            basis = "from the semi-log fh (Olson & Jackson 1942)"
+        if alpha is not None:
+            lines.append(f"# for model = \"conduction\" ({report.container.describe()}; {basis})")
+            lines.append("# use this line in place of fh_min and jh:")
+            lines.append(f"# thermal_diffusivity_m2_s = {_g(alpha, 3)}")
+    return "\n".join(lines) + "\n"

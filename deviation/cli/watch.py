@@ -13,8 +13,8 @@ import sys
 from pathlib import Path
 
 from deviation.cli.common import actor_of, add_common_options, role_of
-from deviation.records.replay import rule_set_from
 from deviation.errors import DeviationError
+from deviation.records.replay import rule_set_from
 
 
 def _process(args, store):

@@ -14,6 +14,7 @@ from typing import Any, Callable
 import numpy as np
 
 from deviation.errors import ModelError
+from deviation.inputs import cycle
 from deviation.inputs import logs as prof
 from deviation.inputs.case import Process
 from deviation.physics.heating import conduction, heating_curve
@@ -122,7 +123,7 @@ def model_grid(profile: prof.RetortProfile, conservative: bool, cooling_start_mi
     t0 = float(profile.time_min[0])
     shifted = replace(profile, time_min=profile.time_min - t0)
     step = _grid_step(shifted.time_min)
-    grid, retort = prof.resample_uniform(shifted, step, conservative=conservative)
+    grid, retort = cycle.resample_uniform(shifted, step, conservative=conservative)
     start = None
     if cooling_start_min is not None:
         # Snap steam-off down to the grid, so the segment in which the retort starts to fall
@@ -151,7 +152,7 @@ def deliver(profile: prof.RetortProfile, initial_C: float, process: Process, mod
 
 def filed_profile(process: Process, *, start_C: float, come_up_min: float, hold_min: float,
                    cooling_min: float) -> prof.RetortProfile:
-    return prof.filed_cycle(
+    return cycle.filed_cycle(
         process_temperature_C=process.process_temperature_C,
         come_up_time_min=come_up_min,
         process_time_min=hold_min,

@@ -32,6 +32,7 @@ from deviation.evaluate.whatif import (
     monte_carlo,
     reprocess_as_filed,
 )
+from deviation.inputs import cycle
 from deviation.inputs import logs as prof
 from deviation.inputs.case import Case, LoadedCase, Process
 from deviation.physics.lethality import general_method, lethal_rate
@@ -90,13 +91,13 @@ def build_retort_profile(loaded: LoadedCase, model: ColdSpotModel) -> prof.Retor
     for i, ev in enumerate(events):
         if ev.kind == "temperature-low":
             try:
-                profile = prof.apply_temperature_low(profile, ev.start_min, ev.end_min, ev.temperature_C)
+                profile = cycle.apply_temperature_low(profile, ev.start_min, ev.end_min, ev.temperature_C)
             except RecordError as exc:
                 raise CaseError(f"deviation.events[{i}]: {exc.message}", source=loaded.source) from None
     return profile
 
 
-def _is_running(profile: prof.RetortProfile, analysis: prof.CycleAnalysis) -> bool:
+def _is_running(profile: prof.RetortProfile, analysis: cycle.CycleAnalysis) -> bool:
     """The record stops while the cycle still runs: at the hold, or still rising towards it."""
     if analysis.ends_before_cooling:
         return True
@@ -156,7 +157,7 @@ def _alternates(case: Case, profile: prof.RetortProfile, come_up_min: float | No
     process, dev = case.process, case.deviation
     met = []
     for alt in process.alternate:
-        run = prof.longest_run_at_or_above(profile, alt.process_temperature_C)
+        run = cycle.longest_run_at_or_above(profile, alt.process_temperature_C)
         if run is None:
             continue
         start, end = run
@@ -196,7 +197,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
     micro = process.microbiology
 
     profile = build_retort_profile(loaded, model)
-    analysis = prof.analyse_cycle(
+    analysis = cycle.analyse_cycle(
         profile,
         process_temperature_C=PT,
         process_time_min=process.process_time_min,

@@ -18,6 +18,7 @@ from deviation.evaluate.cold_spot import (
     model_grid,
     scheduled_F_min,
 )
+from deviation.inputs import cycle
 from deviation.inputs import logs as prof
 from deviation.inputs.case import LoadedCase, Process
 from deviation.physics.spoilage import nonsterile_probability
@@ -27,7 +28,7 @@ from deviation.physics.uncertainty import lognormal_factors, sample_F, summarise
 _EXTENSION_LIMIT_MIN = 600.0
 
 
-def continue_as_filed(profile: prof.RetortProfile, process: Process, analysis: prof.CycleAnalysis,
+def continue_as_filed(profile: prof.RetortProfile, process: Process, analysis: cycle.CycleAnalysis,
                        model: ColdSpotModel, extra_hold_min: float = 0.0) -> tuple[prof.RetortProfile, float]:
     """The record so far, then the rest of the filed cycle from its last point.
 
@@ -73,7 +74,7 @@ def insert_hold(profile: prof.RetortProfile, at_min: float, extra_min: float, PT
     return prof.RetortProfile(new_t[keep], new_T[keep], profile.source + " + extension", None)
 
 
-def gap_worst_case_F(profile: prof.RetortProfile, analysis: prof.CycleAnalysis, limit: float,
+def gap_worst_case_F(profile: prof.RetortProfile, analysis: cycle.CycleAnalysis, limit: float,
                       loaded: LoadedCase, model: ColdSpotModel, conservative: bool) -> float | None:
     """F when every over-limit gap inside the hold is read as no heat at all (cooling water)."""
     t, T = profile.time_min, profile.temperature_C
@@ -97,7 +98,7 @@ def gap_worst_case_F(profile: prof.RetortProfile, analysis: prof.CycleAnalysis, 
     return d.F_min
 
 
-def extension_to_target(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.CycleAnalysis,
+def extension_to_target(loaded: LoadedCase, profile: prof.RetortProfile, analysis: cycle.CycleAnalysis,
                model: ColdSpotModel, delivered: Delivered, conservative: bool,
                source: str, running: bool) -> tuple[float | None, str | None]:
     """Least extra minutes at process temperature, added before cooling, that reach the target F.
@@ -137,7 +138,7 @@ def extension_to_target(loaded: LoadedCase, profile: prof.RetortProfile, analysi
     return math.ceil(root * 10.0 - 1e-9) / 10.0, None
 
 
-def monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: prof.CycleAnalysis,
+def monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: cycle.CycleAnalysis,
                  model: ColdSpotModel, spec, conservative: bool, source: str,
                  delivered_F: float) -> dict[str, Any]:
     """Monte Carlo over fh (or diffusivity), jh, initial temperature and spores per container."""

@@ -242,8 +242,8 @@ class Watch:
                  process_ref=None, source: str = "retort log", record_gap_limit_min: float = 2.0,
                  cooling_done_C: float = COOLING_DONE_C, conservative: bool = False, rule_set=None,
                  on_event: Callable[[dict], None] | None = None) -> None:
-        from deviation.records import roles
         from deviation.inputs.case import parse_case
+        from deviation.records import roles
 
         self.process = process
         self.store = store
@@ -286,8 +286,8 @@ class Watch:
         self.profile = None
         # Load the engine and the rules now, not at the first reading: evaluate the filed cycle
         # once (about a second on the first call in a process, then tens of milliseconds).
-        from deviation.inputs.case import LoadedCase
         from deviation.evaluate import evaluate_case
+        from deviation.inputs.case import LoadedCase
 
         filed = self.case.model_copy(update={"deviation": self.case.deviation.model_copy(
             update={"retort_log": None})})
@@ -348,7 +348,8 @@ class Watch:
     # -- judging each reading --------------------------------------------------------------
 
     def _analyse(self, k: int):
-        from deviation.inputs.logs import RetortProfile, analyse_cycle
+        from deviation.inputs.cycle import analyse_cycle
+        from deviation.inputs.logs import RetortProfile
 
         p, dev = self.process, self.case.deviation
         prefix = RetortProfile(self.profile.time_min[:k], self.profile.temperature_C[:k], self.source)
@@ -515,8 +516,8 @@ class Watch:
     _stored_rows = -1
 
     def _store_call(self, fn, *args, **kw):
-        from deviation.records.roles import TransitionRefused
         from deviation.errors import StoreError
+        from deviation.records.roles import TransitionRefused
 
         if not self._record_writable:
             return None

@@ -5,11 +5,12 @@ scheduled process, each deviation (what, when, how far, how long), all inputs wi
 checksums, the method statement, the results, the guidance with each rule's basis, the event
 timeline with sign-offs, the caution, and a signature block.
 
-Layers (one direction): :func:`build_report_context` turns a case and its
+One direction: :func:`build_report_context` (this module) turns a case and its
 :class:`~deviation.evaluate.Evaluation` into plain data (strings, numbers, lists, dicts: the
 only place figures are formatted, so every format shows the same figures); the templates
-``templates/report.html.j2`` and ``templates/report.md.j2`` lay it out; :func:`render_pdf`
-prints the same HTML with WeasyPrint. Nothing here computes physics: the figures come from the
+``templates/report.html.j2`` and ``templates/report.md.j2`` lay it out (:mod:`.render`), and
+:func:`~deviation.report.render.render_pdf` prints the same HTML with WeasyPrint; :mod:`.plots`
+draws the plots. Nothing here computes physics: the figures come from the
 evaluation, the plots from its cold-spot series.
 
 Deterministic by construction: the same case, evaluation, events and rules give the same
@@ -34,32 +35,17 @@ from __future__ import annotations
 
 import datetime as _dt
 import hashlib
-import io
 import math
 import re
 from pathlib import Path
 from typing import Any
 
-from deviation.errors import DeviationError
+from deviation.report.plots import plots_svg
 
-__all__ = [
-    "FLAG_TITLES",
-    "FORMATS",
-    "REFERENCES",
-    "build_report_context",
-    "plots_svg",
-    "render_html",
-    "render_markdown",
-    "render_pdf",
-    "write_report",
-]
+__all__ = ["FLAG_TITLES", "FORMATS", "REFERENCES", "build_report_context"]
 
 FORMATS = ("html", "pdf", "md")
 
-# System packages WeasyPrint needs on Debian/Ubuntu (Pango for text layout, HarfBuzz for
-# shaping, fontconfig and a font). Named in the error a missing one raises.
-PDF_SYSTEM_PACKAGES = ("libpango-1.0-0 libpangoft2-1.0-0 libharfbuzz0b libharfbuzz-subset0 libfontconfig1 "
-                       "libglib2.0-0 fonts-dejavu-core")
 
 REFERENCES = (
     ("bigelow1920", "Bigelow, W. D., Bohart, G. S., Richardson, A. C., Ball, C. O. (1920). Heat "
@@ -99,10 +85,6 @@ FLAG_TITLES = {
 _HASH_PREFIX = 12
 # The timeline table shows every 10 min of the cold-spot history (and the last point).
 _TABLE_STEP_MIN = 10.0
-# Plot at most this many points per curve (every n-th sample): the SVG stays small and the
-# PDF fast; the figures in the report come from the full series, never from the plot.
-_PLOT_POINTS = 2500
-_SVG_SALT = "deviation-report"
 
 
 # ---------------------------------------------------------------------------------------------
@@ -340,7 +322,9 @@ def _method(loaded, ev) -> dict[str, Any]:
         if biot:
             params.append(f"surface h = {biot:.4g} W/(m²·K), product k = {hp.thermal_conductivity_W_mK:.4g} W/(m·K)")
     elif hp.model == "conduction":
-        from deviation.physics.heating import conduction  # parameter display only: the same functions evaluate uses
+        from deviation.physics.heating import (
+            conduction,  # parameter display only: the same functions evaluate uses
+        )
 
         if box.shape == "cylinder":
             r_m, h_m = box.diameter_mm / 2000.0, box.height_mm / 1000.0
@@ -673,202 +657,7 @@ def build_report_context(loaded, evaluation, *, rule_set, events=None, record_id
     }
 
 
-def _jinja_env():
-    try:
-        import jinja2
-    except ImportError:
-        raise DeviationError("the report needs the Python package jinja2: pip install jinja2") from None
-    return jinja2.Environment(
-        loader=jinja2.PackageLoader("deviation.report", "templates"),
-        autoescape=jinja2.select_autoescape(enabled_extensions=("html.j2",), default_for_string=True),
-        undefined=jinja2.StrictUndefined,
-        trim_blocks=True,
-        lstrip_blocks=True,
-        keep_trailing_newline=True,
-    )
-
-
-def render_html(ctx: dict) -> str:
-    """The report as a self-contained XHTML-compatible HTML document (inline CSS and SVG only)."""
-    return _jinja_env().get_template("report.html.j2").render(**ctx)
-
-
-def _md_cell(value: Any) -> str:
-    """A Markdown table cell: pipes escaped, line breaks flattened."""
-    return str(value).replace("|", "\\|").replace("\n", " ")
-
-
-def render_markdown(ctx: dict) -> str:
-    """The report as Markdown (GitHub tables; no plots, the history table stands for them)."""
-    env = _jinja_env()
-    env.filters["cell"] = _md_cell
-    return env.get_template("report.md.j2").render(**ctx)
-
-
-def render_pdf(ctx: dict) -> bytes:
-    """The report as PDF: the same HTML printed by WeasyPrint (A4, vector plots).
-
-    Raises
-    ------
-    DeviationError
-        WeasyPrint or the system libraries it needs (Pango) are missing.
-    """
-    html = render_html(ctx)
-    try:
-        import weasyprint
-    except ImportError:
-        raise DeviationError("PDF output needs the Python package weasyprint: pip install weasyprint "
-                             f"(and the system packages: apt-get install {PDF_SYSTEM_PACKAGES})") from None
-    except OSError as exc:
-        raise DeviationError(f"PDF output cannot load a system library ({exc}); install: "
-                             f"apt-get install {PDF_SYSTEM_PACKAGES}") from None
-    try:
-        # No base_url: nothing in the document is fetched (it holds no external resource).
-        return weasyprint.HTML(string=html).write_pdf()
-    except OSError as exc:
-        raise DeviationError(f"PDF output failed ({exc}); check the system packages: "
-                             f"apt-get install {PDF_SYSTEM_PACKAGES}") from None
-
-
-def write_report(path, fmt: str, ctx: dict) -> None:
-    """Render ``ctx`` as ``fmt`` (``html``, ``pdf`` or ``md``) and write it to ``path`` (``-``: stdout)."""
-    import sys
-
-    if fmt not in FORMATS:
-        raise DeviationError(f"unknown report format {fmt!r}; expected one of: {', '.join(FORMATS)}")
-    data: str | bytes = {"html": render_html, "md": render_markdown, "pdf": render_pdf}[fmt](ctx)
-    if str(path) == "-":
-        if isinstance(data, bytes):
-            raise DeviationError("a PDF is not written to the terminal: give -o FILE.pdf")
-        sys.stdout.write(data)
-        return
-    path = Path(path)
-    try:
-        if isinstance(data, bytes):
-            path.write_bytes(data)
-        else:
-            path.write_text(data, encoding="utf-8")
-    except OSError as exc:
-        raise DeviationError(f"cannot write the report: {exc.strerror}", source=str(path)) from None
-
-
 # ---------------------------------------------------------------------------------------------
 # Plots
 
 
-def _clean_svg(text: str) -> str:
-    """Inline-ready SVG: no XML declaration, DOCTYPE or metadata block (nothing version-dependent)."""
-    start = text.find("<svg")
-    text = text[start:]
-    text = re.sub(r"<metadata>.*?</metadata>\s*", "", text, flags=re.S)
-    # Sized by the page: the viewBox keeps the aspect ratio.
-    text = re.sub(r'<svg([^>]*?) width="[^"]*" height="[^"]*"', r'<svg\1 class="plot"', text, count=1)
-    return text.strip() + "\n"
-
-
-def _thin(n: int) -> slice:
-    return slice(None, None, max(1, math.ceil(n / _PLOT_POINTS)))
-
-
-def plots_svg(evaluation, process) -> dict[str, str]:
-    """The report's two plots as inline SVG (matplotlib, SVG backend, deterministic output).
-
-    1. ``temperature``: retort and cold-spot temperature against time, the process temperature
-       line and each interval below it (and each over-limit record gap) shaded and hatched.
-    2. ``lethality``: lethal rate and cumulative F0 against time, with the filed target line.
-
-    Line styles and hatches differ as well as colours: colour is never the only signal.
-
-    Parameters
-    ----------
-    evaluation : deviation.evaluate.Evaluation
-        Supplies the cold-spot series, the low intervals and the flags.
-    process : deviation.inputs.case.Process
-        The filed process (process temperature [°C], target F0 [min]).
-
-    Returns
-    -------
-    dict of str to str
-        SVG markup by plot name, with text kept as text.
-    """
-    try:
-        import matplotlib
-        from matplotlib.backends.backend_svg import FigureCanvasSVG
-        from matplotlib.figure import Figure
-    except ImportError:
-        raise DeviationError("the report plots need the Python package matplotlib: pip install matplotlib") from None
-
-    ev = evaluation
-    cs = ev.cold_spot
-    k = _thin(len(cs.time_min))
-    t, TR, TC = cs.time_min[k], cs.retort_C[k], cs.temperature_C[k]
-    L, F = cs.lethal_rate[k], cs.cumulative_F_min[k]
-    # Keep the last point so the final cumulative F0 shows.
-    if cs.time_min and t[-1] != cs.time_min[-1]:
-        t, TR, TC = t + [cs.time_min[-1]], TR + [cs.retort_C[-1]], TC + [cs.temperature_C[-1]]
-        L, F = L + [cs.lethal_rate[-1]], F + [cs.cumulative_F_min[-1]]
-
-    style = {
-        "svg.hashsalt": _SVG_SALT,
-        "svg.fonttype": "none",  # text stays text: selectable in HTML, extractable in the PDF
-        "font.family": "sans-serif",
-        "font.sans-serif": ["DejaVu Sans", "Liberation Sans", "Arial"],
-        "font.size": 8.5,
-        "axes.linewidth": 0.6,
-        "axes.spines.top": False,
-        "lines.linewidth": 1.3,
-        "legend.frameon": False,
-        "legend.fontsize": 7.5,
-        "path.simplify": True,
-    }
-    out = {}
-    with matplotlib.rc_context(style):
-        fig = Figure(figsize=(6.9, 2.3))
-        FigureCanvasSVG(fig)
-        ax = fig.add_subplot()
-        for i, li in enumerate(ev.cycle.low_intervals):
-            ax.axvspan(li.start_min, li.end_min, facecolor="#f4c7c3", edgecolor="#b3261e", hatch="////",
-                       linewidth=0.0, alpha=0.7, label="below process temperature" if i == 0 else None)
-        gaps = [f for f in ev.flags if f.code == "record-gap" and f.start_min is not None]
-        for i, f in enumerate(gaps):
-            ax.axvspan(f.start_min, f.end_min, facecolor="#e0e0e0", edgecolor="#555555", hatch="xx",
-                       linewidth=0.0, alpha=0.8, label="gap in the record" if i == 0 else None)
-        ax.axhline(process.process_temperature_C, color="#444444", linestyle=(0, (1.5, 1.5)), linewidth=0.9,
-                   label=f"process temperature {process.process_temperature_C:.1f} °C")
-        ax.plot(t, TR, color="#1f4e79", linestyle="-", label="retort")
-        ax.plot(t, TC, color="#c0504d", linestyle=(0, (5, 2)),
-                label="cold spot (measured)" if cs.source == "measured" else f"cold spot ({cs.source} model)")
-        ax.set_xlabel("time from steam on [min]")
-        ax.set_ylabel("temperature [°C]")
-        ax.set_xlim(t[0], t[-1])
-        ax.grid(True, linewidth=0.3, color="#cccccc")
-        ax.legend(loc="lower center", ncol=3, bbox_to_anchor=(0.5, 1.0))
-        fig.tight_layout(pad=0.4)
-        buf = io.StringIO()
-        fig.savefig(buf, format="svg", metadata={"Date": None})
-        out["temperature"] = _clean_svg(buf.getvalue())
-
-        fig = Figure(figsize=(6.9, 2.3))
-        FigureCanvasSVG(fig)
-        ax = fig.add_subplot()
-        ax.spines["right"].set_visible(True)
-        ax.plot(t, L, color="#7f6000", linestyle="-", label="lethal rate L")
-        ax.set_xlabel("time from steam on [min]")
-        ax.set_ylabel("lethal rate L [-]")
-        ax.set_xlim(t[0], t[-1])
-        ax.set_ylim(bottom=0.0)
-        ax.grid(True, linewidth=0.3, color="#cccccc")
-        ax2 = ax.twinx()
-        ax2.plot(t, F, color="#1f4e79", linestyle=(0, (5, 2)), label="cumulative F0")
-        ax2.axhline(process.target_F_min, color="#444444", linestyle=(0, (1.5, 1.5)), linewidth=0.9,
-                    label=f"filed target F0 {process.target_F_min:.2f} min")
-        ax2.set_ylabel("cumulative F0 [min]")
-        ax2.set_ylim(bottom=0.0, top=max(max(F) if F else 0.0, process.target_F_min) * 1.12)
-        handles = ax.get_legend_handles_labels()[0] + ax2.get_legend_handles_labels()[0]
-        labels = ax.get_legend_handles_labels()[1] + ax2.get_legend_handles_labels()[1]
-        ax.legend(handles, labels, loc="lower center", ncol=3, bbox_to_anchor=(0.5, 1.0))
-        fig.tight_layout(pad=0.4)
-        buf = io.StringIO()
-        fig.savefig(buf, format="svg", metadata={"Date": None})
-        out["lethality"] = _clean_svg(buf.getvalue())
-    return out

@@ -6,5 +6,6 @@ goes through :mod:`deviation.records.store` with the same role rules and message
 """
 
 from deviation.tui.app import DeviationApp, build_app
+from deviation.tui.screenshots import save_screens
 
-__all__ = ["DeviationApp", "build_app"]
+__all__ = ["DeviationApp", "build_app", "save_screens"]

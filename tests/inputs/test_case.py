@@ -4,8 +4,8 @@ from pathlib import Path
 
 import pytest
 
-from deviation.inputs.case import load_case, parse_case, case_json_schema, LoadedCase
 from deviation.errors import CaseError
+from deviation.inputs.case import LoadedCase, case_json_schema, load_case, parse_case
 
 DATA = Path(__file__).parents[1] / "data"
 

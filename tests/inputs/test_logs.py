@@ -10,16 +10,14 @@ import numpy as np
 import pytest
 
 from deviation.errors import RecordError
-from deviation.inputs.logs import (
-    RetortProfile,
+from deviation.inputs.cycle import (
     analyse_cycle,
     apply_temperature_low,
     filed_cycle,
     longest_run_at_or_above,
-    parse_log_text,
-    read_log,
     resample_uniform,
 )
+from deviation.inputs.logs import RetortProfile, parse_log_text, read_log
 
 BAD_LOGS = Path(__file__).parents[1] / "data" / "bad_logs"
 PT_C = 121.1  # a common process temperature (250 °F)

@@ -7,13 +7,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from deviation.errors import RecordError
-from deviation.inputs.logs import (
-    RetortProfile,
-    analyse_cycle,
-    apply_temperature_low,
-    parse_log_text,
-    resample_uniform,
-)
+from deviation.inputs.cycle import analyse_cycle, apply_temperature_low, resample_uniform
+from deviation.inputs.logs import RetortProfile, parse_log_text
 
 CODES = {"temperature-low", "short-hold", "long-come-up", "low-initial-temperature", "record-gap",
          "process-temperature-not-reached", "record-ends-before-cooling"}

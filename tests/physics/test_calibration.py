@@ -19,12 +19,12 @@ import pytest
 
 from deviation.inputs.case import HeatPenetration
 from deviation.errors import ModelError, RecordError
+from deviation.cli.fit import paste_table
+from deviation.inputs.heat_penetration import read_heat_penetration_csv
 from deviation.physics.calibration import (
     ContainerGeometry,
     fit_all,
     least_squares_fit,
-    paste_table,
-    read_heat_penetration_csv,
     retort_phases,
     semilog_cooling_fit,
     semilog_fit,
