@@ -55,8 +55,9 @@ def test_conservative_never_exceeds_trapezoid(steps, temps, conservative_z):
     temperature = np.array(temps.draw(readings))
     F_c, cum_c = general_method(t, temperature, 121.1, conservative_z, conservative=True)
     F_t, cum_t = general_method(t, temperature, 121.1, conservative_z)
-    assert F_c <= F_t * (1 + 1e-12)
-    assert np.all(cum_c <= cum_t * (1 + 1e-12))
+    # 1e-300: subnormal steps (hypothesis tries 5e-324 min) round differently in the two forms.
+    assert F_c <= F_t * (1 + 1e-12) + 1e-300
+    assert np.all(cum_c <= cum_t * (1 + 1e-12) + 1e-300)
 
 
 @pytest.mark.parametrize(
