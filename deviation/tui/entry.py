@@ -20,8 +20,8 @@ from dataclasses import asdict, dataclass, field, replace
 from datetime import datetime, timedelta
 from typing import Any, Callable
 
-from deviation.inputs.case import Case, LoadedCase, parse_case
 from deviation.errors import CaseError, DeviationError
+from deviation.inputs.case import Case, LoadedCase, parse_case
 
 # A low interval opened and closed within the same recorder second still lasts one second [min]:
 # the engine needs end > start, and one second is the finest record the engine resolves.

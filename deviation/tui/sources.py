@@ -179,8 +179,8 @@ def _relative_sources(loaded, base: Path):
 
 def seed_demo(store, cases_dir: str | Path | None = None) -> dict:
     """Fill an empty store with the demo plant's processes and a few records in different states."""
-    from deviation.inputs.case import load_case
     from deviation.evaluate import evaluate_case
+    from deviation.inputs.case import load_case
 
     cases_dir = Path(cases_dir) if cases_dir else REPO_DEMO_CASES
     if store.count_records():

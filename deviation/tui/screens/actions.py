@@ -8,8 +8,8 @@ from __future__ import annotations
 
 from typing import Callable
 
-from deviation.records import roles
 from deviation.errors import DeviationError
+from deviation.records import roles
 from deviation.tui.screens.dialogs import (
     DecideDialog,
     Decision,

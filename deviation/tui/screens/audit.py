@@ -18,8 +18,8 @@ from textual.widgets import DataTable, Footer, Static
 
 from deviation.errors import DeviationError
 from deviation.tui.screens.dialogs import ExportReportDialog, FileChoice
-from deviation.tui.widgets.status import StatusLine
 from deviation.tui.widgets.comparison import ComparisonTable
+from deviation.tui.widgets.status import StatusLine
 from deviation.tui.widgets.timeline import Timeline
 
 
@@ -29,9 +29,9 @@ def replay_record(store, record_id: str) -> dict:
     The comparison is :func:`deviation.records.replay.replay_item` (the CLI's ``replay``), so the
     verdict and its reasons read the same here and in ``deviation replay``.
     """
+    from deviation.evaluate import default_rule_set, evaluate_case
     from deviation.inputs.case import LoadedCase
     from deviation.records.replay import compare_evaluations, replay_item
-    from deviation.evaluate import default_rule_set, evaluate_case
 
     rs = default_rule_set()
     items = list(store.iter_replay_items([record_id]))

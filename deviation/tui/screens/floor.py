@@ -40,8 +40,9 @@ from deviation.tui.entry import (
     without_last_reading,
 )
 from deviation.tui.follow import POLL_S, FollowEvent, FollowSession, FollowStart, run_follow
-from deviation.tui.screens.dialogs import FileChoice, FollowLogDialog, ImportLogDialog
+from deviation.tui.screens.floor_dialogs import FollowLogDialog, ImportLogDialog
 from deviation.tui.sources import FiledProcess, filed_processes
+from deviation.tui.widgets.form import FileChoice
 from deviation.tui.widgets.guidance import CautionBar, GuidancePanel
 from deviation.tui.widgets.plots import CyclePlots
 from deviation.tui.widgets.results import FloorFigures, ResultsPanel

@@ -12,13 +12,13 @@ from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.screen import Screen
-from deviation.tui.widgets.steady_input import SteadyInput
 from textual.widgets import DataTable, Footer, Input, Static
 
 from deviation.errors import DeviationError
 from deviation.tui.screens.actions import run_record_action
-from deviation.tui.widgets.status import StatusLine
 from deviation.tui.widgets.results import disposition_look
+from deviation.tui.widgets.status import StatusLine
+from deviation.tui.widgets.steady_input import SteadyInput
 
 STATE_LOOK = {
     "entered": ("○ entered", ""),

@@ -13,11 +13,11 @@ from textual.binding import Binding
 from textual.screen import Screen
 from textual.widgets import Footer, Static
 
-from deviation.records import roles
 from deviation.errors import DeviationError
+from deviation.records import roles
 from deviation.tui.screens.actions import run_record_action
-from deviation.tui.widgets.status import StatusLine
 from deviation.tui.widgets.results import disposition_text
+from deviation.tui.widgets.status import StatusLine
 from deviation.tui.widgets.timeline import Timeline
 
 

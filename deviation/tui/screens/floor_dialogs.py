@@ -1,0 +1,28 @@
+"""Dialogs of the floor entry screen: import a retort log, follow a log the recorder is writing."""
+
+from __future__ import annotations
+
+
+from deviation.errors import DeviationError
+from deviation.tui.follow import FollowStart, open_followed_log
+from deviation.tui.widgets.form import Field, FileChoice, FormDialog
+
+
+class ImportLogDialog(FormDialog[FileChoice]):
+    TITLE_TEXT = "Import a retort log (CSV: time_min, temperature_C)"
+    FIELDS = (Field("path", "File", "path/to/retort-log.csv"),)
+
+    def make_result(self, v):
+        if not v["path"]:
+            raise DeviationError("give the path of the retort log CSV", source="file")
+        return FileChoice(v["path"])
+
+
+class FollowLogDialog(FormDialog[FollowStart]):
+    """The path of a retort log still being written; checked in place (exists, valid header)."""
+
+    TITLE_TEXT = "◉ Follow a retort log the recorder is still writing (CSV)"
+    FIELDS = (Field("path", "File (rows are read as they are written)", "path/to/retort-log.csv"),)
+
+    def make_result(self, v):
+        return open_followed_log(v["path"])
