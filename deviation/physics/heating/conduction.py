@@ -1,16 +1,26 @@
 """Conduction heating at the geometric centre of a container: analytical series solutions.
 
 A container of conduction-heating product, initially at a uniform temperature ``T_0``, whose
-surface is held at the retort temperature ``T_R`` from ``t = 0`` (Dirichlet boundary, infinite
-surface heat transfer coefficient). The fraction of the temperature change not yet accomplished at
-the centre,
+surroundings are at the retort temperature ``T_R`` from ``t = 0``. The fraction of the temperature
+change not yet accomplished at the centre,
 
     S(t) = (T_R - T(t)) / (T_R - T_0),
 
 is, for a finite cylinder, the product of the infinite-cylinder Bessel series and the infinite-slab
-cosine series (product solution), and for a brick the product of three slab series
+series (product solution), and for a brick the product of three slab series
 (Carslaw & Jaeger [1], ch. III (slab), ch. VII (cylinder) and the product rule for
 intersecting regions; Powers [2], ch. 5; chapter numbers from memory).
+
+Two surface conditions:
+
+- surface held at the retort temperature (Dirichlet; infinite surface heat transfer
+  coefficient), the default: eigenvalues are the zeros of J0 and ``(2n+1)π/2``;
+- a finite surface heat transfer coefficient ``h`` (Robin boundary ``-k ∂T/∂n = h (T_s - T_R)``;
+  water immersion, water spray, steam-air), given as ``h/k`` [1/m]: the eigenvalues are the roots
+  of ``λ tan λ = Bi`` (slab, ``Bi = h a / k`` on the half-thickness ``a``) and
+  ``λ J1(λ) = Bi J0(λ)`` (cylinder, ``Bi = h R / k``) ([1] ch. III and VII, the "radiation"
+  boundary; Incropera & DeWitt [4] §5.5-5.6 and Table 5.1; section numbers from memory). One
+  ``h`` applies to the whole surface; a container wall's own resistance belongs in it.
 
 Every function here is pure numpy/scipy: arrays and floats in, arrays and floats out.
 
@@ -21,34 +31,37 @@ References
 .. [2] D. L. Powers, *Boundary Value Problems*, ch. 5.
 .. [3] F. C. W. Olson and J. M. Jackson, "Heating curves: theory and practical application",
    *Industrial and Engineering Chemistry* 34 (1942) 337-341.
+.. [4] F. P. Incropera and D. P. DeWitt, *Fundamentals of Heat and Mass Transfer*, New York:
+   Wiley, ch. 5 (transient conduction).
 """
 
 from __future__ import annotations
 
 import math
-from functools import lru_cache
+from functools import lru_cache, partial
 
 import numpy as np
-from scipy.optimize import brentq
 from scipy.special import erfc, j0, j1, jn_zeros
 
 from deviation.errors import ModelError
 
 __all__ = [
-    "first_eigenvalue_slab",
-    "first_eigenvalue_cylinder",
-    "decay_rate_cylinder_s",
-    "decay_rate_brick_s",
     "ModelInputError",
-    "cylinder_centre_unaccomplished",
     "brick_centre_unaccomplished",
-    "slab_centre_unaccomplished",
-    "diffusivity_from_fh_cylinder",
-    "fh_from_diffusivity_cylinder",
+    "cylinder_centre_unaccomplished",
+    "decay_rate_brick_s",
+    "decay_rate_cylinder_s",
     "diffusivity_from_fh_brick",
+    "diffusivity_from_fh_cylinder",
     "fh_from_diffusivity_brick",
-    "theoretical_centre_jh_cylinder",
+    "fh_from_diffusivity_cylinder",
+    "first_coefficient_cylinder",
+    "first_coefficient_slab",
+    "first_eigenvalue_cylinder",
+    "first_eigenvalue_slab",
+    "slab_centre_unaccomplished",
     "theoretical_centre_jh_brick",
+    "theoretical_centre_jh_cylinder",
 ]
 
 SECONDS_PER_MINUTE = 60.0
@@ -197,54 +210,212 @@ def _evaluate(fourier: np.ndarray, series, n_terms: int) -> np.ndarray:
     return s.reshape(fourier.shape)
 
 
+# --- a finite surface heat transfer coefficient (Biot boundary): eigenvalues and coefficients ---
+#
+# Slab, half-thickness a, Bi = h a / k ([1] ch. III; [4] §5.5):
+#     λ tan λ = Bi,  one root in each (nπ, nπ + π/2),  C_n = 2 sin λ_n / (λ_n + sin λ_n cos λ_n).
+# Infinite cylinder, radius R, Bi = h R / k ([1] ch. VII; [4] §5.6):
+#     λ J1(λ) = Bi J0(λ),  one root between each zero of J1 (0 first) and the next zero of J0,
+#     C_n = 2 Bi / ((λ_n² + Bi²) J0(λ_n)) = 2 J1(λ_n) / (λ_n (J0(λ_n)² + J1(λ_n)²)).
+# The two cylinder forms are equal on the roots (substitute J1 = Bi J0 / λ); the second is used
+# because J0(λ_n) -> 0 as Bi -> inf, where the first loses digits (relative error ~ eps Bi / λ).
+# Bi -> inf gives the Dirichlet values: (2n+1)π/2 with 4(-1)^n/((2n+1)π), and J0's zeros with
+# 2/(β J1(β)).
+
+# Each bracket is halved this many times: 80 halvings take a bracket of width <= π below 3e-24,
+# under a rounding unit of any root for Bi >= 1e-15 (the first root is ~ √Bi for small Bi).
+_BISECTION_STEPS = 80
+
+
+@lru_cache(maxsize=8)
+def _bessel_j1_zeros(count: int) -> np.ndarray:
+    """First ``count`` positive zeros of J1 (cached like :func:`_bessel_j0_zeros`)."""
+    zeros = jn_zeros(1, count) if count else np.zeros(0)
+    zeros.flags.writeable = False
+    return zeros
+
+
+def _bracketed_roots(root_above, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """Roots of increasing functions, one per bracket ``(lo, hi)``, by vectorised bisection.
+
+    ``root_above(x)`` is True where the bracket's root lies above ``x``. Bisection, not Newton:
+    every step keeps the root inside its bracket, whatever Bi (tan and J1/J0 have poles at the
+    upper ends).
+    """
+    lo, hi = lo.copy(), hi.copy()
+    for _ in range(_BISECTION_STEPS):
+        mid = 0.5 * (lo + hi)
+        above = root_above(mid)
+        lo = np.where(above, mid, lo)
+        hi = np.where(above, hi, mid)
+    return 0.5 * (lo + hi)
+
+
+def _read_only(*arrays):
+    for a in arrays:
+        a.flags.writeable = False
+    return arrays
+
+
+@lru_cache(maxsize=32)
+def _slab_modes(biot: float | None, count: int) -> tuple[np.ndarray, np.ndarray]:
+    """First ``count`` eigenvalues λ_n [-] and mid-plane coefficients C_n [-] of a slab.
+
+    ``biot`` None: surface at the retort temperature. Cached: a cold-spot model calls it with the
+    same Bi for every evaluation.
+    """
+    k = np.arange(count)
+    sign = (-1.0) ** k
+    if biot is None:
+        lam = (k + 0.5) * np.pi
+        return _read_only(lam, 2.0 * sign / lam)
+    # x tan x - Bi increases from -Bi to +inf on (kπ, kπ + π/2); written without the division,
+    # x sin x - Bi cos x carries the sign of cos there, (-1)^k.
+    lam = _bracketed_roots(lambda x: (x * np.sin(x) - biot * np.cos(x)) * sign < 0.0,
+                           k * np.pi, (k + 0.5) * np.pi)
+    sin, cos = np.sin(lam), np.cos(lam)
+    return _read_only(lam, 2.0 * sin / (lam + sin * cos))
+
+
+@lru_cache(maxsize=32)
+def _cylinder_modes(biot: float | None, count: int) -> tuple[np.ndarray, np.ndarray]:
+    """First ``count`` eigenvalues λ_n [-] and axis coefficients C_n [-] of an infinite cylinder.
+
+    ``biot`` None: surface at the retort temperature (the zeros of J0).
+    """
+    upper = np.array(_bessel_j0_zeros(count))
+    if biot is None:
+        return _read_only(upper, 2.0 / (upper * j1(upper)))
+    lower = np.concatenate(([0.0], _bessel_j1_zeros(count - 1)))
+    # x J1/J0 - Bi increases from -Bi to +inf on (j1_k, j0_{k+1}) (derivative x (J0² + J1²)/J0²);
+    # J0 has the sign (-1)^k there.
+    sign = (-1.0) ** np.arange(count)
+    lam = _bracketed_roots(lambda x: (x * j1(x) - biot * j0(x)) * sign < 0.0, lower, upper)
+    j0_lam, j1_lam = j0(lam), j1(lam)
+    return _read_only(lam, 2.0 * j1_lam / (lam * (j0_lam**2 + j1_lam**2)))
+
+
+_MODES = {"slab": _slab_modes, "cylinder": _cylinder_modes}
+
+
+def _biot_sorted(fourier_sorted: np.ndarray, n_terms: int, kind: str, biot: float) -> np.ndarray:
+    """Unaccomplished fraction at the centre of a slab or on the axis of a cylinder with a Biot
+    boundary, for ascending Fo (on the half-thickness or the radius): ``S = Σ C_n exp(-λ_n² Fo)``.
+
+    The series is complete to double precision once ``λ_{N+1}² Fo > 40``. Below that S is set to
+    1: the surface with a finite h is never warmer than the retort, so by the comparison
+    principle the centre heats no faster than with the surface at the retort temperature,
+    ``S_Dirichlet <= S <= 1``; there ``1 - S_Dirichlet`` is below 1e-22 for ``n_terms >= 40``
+    (slab: ``2 erfc(1/(2√Fo)) < 1e-44`` with ``λ_41 > 40π``; cylinder: the bound of
+    :func:`_cylinder_sorted` with ``λ_41`` above the 40th zero of J1). So S(0) = 1 exactly and the
+    truncated series' oscillation at t -> 0+ never appears; the choice is the cooler side.
+    """
+    lam, coeffs = _MODES[kind](biot, n_terms + 1)
+    complete_from = _NEGLIGIBLE_EXPONENT / lam[-1] ** 2
+    s = np.zeros_like(fourier_sorted)
+    n_short = int(np.searchsorted(fourier_sorted, complete_from, side="left"))
+    s[:n_short] = 1.0
+    _add_exponential_terms(s, fourier_sorted, coeffs[:-1], lam[:-1] ** 2, n_short)
+    return s
+
+
+_DIRICHLET_SERIES = {"slab": _slab_sorted, "cylinder": _cylinder_sorted}
+
+
+def _surface_h_over_k(h_over_k_per_m) -> float | None:
+    """h/k of the surface [1/m]; None for the surface at the retort temperature (None or inf)."""
+    if h_over_k_per_m is None:
+        return None
+    value = float(h_over_k_per_m)
+    if value == math.inf:
+        return None
+    return _positive("h_over_k_per_m", value)
+
+
+# A container is a set of axes, each ("slab", half-thickness [m]) or ("cylinder", radius [m]);
+# the centre's S is the product over the axes, each on its own Fo and Bi.
+
+
+def _cylinder_axes(radius_m, height_m) -> tuple[tuple[str, float], ...]:
+    return (("cylinder", _positive("radius_m", radius_m)),
+            ("slab", 0.5 * _positive("height_m", height_m)))
+
+
+def _brick_axes(length_m, width_m, thickness_m) -> tuple[tuple[str, float], ...]:
+    return tuple(("slab", 0.5 * _positive(name, side)) for name, side in
+                 (("length_m", length_m), ("width_m", width_m), ("thickness_m", thickness_m)))
+
+
+def _centre_unaccomplished(time_min, diffusivity_m2_s, axes, h_over_k_per_m, n_terms):
+    """Product over ``axes`` of the one-dimensional centre series, clipped to [0, 1]."""
+    alpha = _positive("diffusivity_m2_s", diffusivity_m2_s)
+    h_over_k = _surface_h_over_k(h_over_k_per_m)
+    n = _n_terms(n_terms)
+    t_s = _time_s(time_min)
+    s = np.ones_like(t_s)
+    for kind, length_m in axes:
+        if h_over_k is None:
+            series = _DIRICHLET_SERIES[kind]
+        else:
+            series = partial(_biot_sorted, kind=kind, biot=h_over_k * length_m)
+        s = s * _evaluate(alpha * t_s / length_m**2, series, n)
+    return np.clip(s, 0.0, 1.0)
+
+
 def slab_centre_unaccomplished(
-    time_min, diffusivity_m2_s, thickness_m, n_terms=DEFAULT_N_TERMS
+    time_min, diffusivity_m2_s, thickness_m, n_terms=DEFAULT_N_TERMS, *, h_over_k_per_m=None
 ) -> np.ndarray:
     """Unaccomplished temperature fraction at the mid-plane of an infinite slab.
 
     Method: infinite-slab Fourier series with the erfc series at short times (Carslaw &
-    Jaeger [1], ch. III).
+    Jaeger [1], ch. III); with a finite ``h`` the Biot-root series (``λ tan λ = Bi``,
+    ``Bi = h (thickness/2) / k``).
 
     Parameters
     ----------
     time_min : array_like
-        Time since the surface temperature step [min]; times <= 0 give 1.
+        Time since the retort temperature step [min]; times <= 0 give 1.
     diffusivity_m2_s : float
         Thermal diffusivity of the product [m²/s].
     thickness_m : float
         Full thickness of the slab [m].
     n_terms : int, optional
-        Number of cosine-series terms (>= 40).
+        Number of series terms (>= 40).
+    h_over_k_per_m : float, optional
+        Surface heat transfer coefficient over the product's thermal conductivity, ``h / k``
+        [1/m]. ``None`` (default) or ``inf``: surface held at the retort temperature.
 
     Returns
     -------
     numpy.ndarray
-        ``S = (T_R - T) / (T_R - T_0)`` at the mid-plane [-], in [0, 1], shape of ``time_min``.
+        ``S = (T_R - T) / (T_R - T_0)`` at the mid-plane [-], in [0, 1], shape of ``time_min``;
+        ``S(0) = 1`` exactly.
 
     References
     ----------
     .. [1] Carslaw & Jaeger, *Conduction of Heat in Solids*, 2nd ed., 1959, ch. III.
     """
-    alpha = _positive("diffusivity_m2_s", diffusivity_m2_s)
     half = 0.5 * _positive("thickness_m", thickness_m)
-    n = _n_terms(n_terms)
-    fourier = alpha * _time_s(time_min) / half**2
-    return np.clip(_evaluate(fourier, _slab_sorted, n), 0.0, 1.0)
+    return _centre_unaccomplished(time_min, diffusivity_m2_s, (("slab", half),), h_over_k_per_m,
+                                  n_terms)
 
 
 def cylinder_centre_unaccomplished(
-    time_min, diffusivity_m2_s, radius_m, height_m, n_terms=DEFAULT_N_TERMS
+    time_min, diffusivity_m2_s, radius_m, height_m, n_terms=DEFAULT_N_TERMS, *,
+    h_over_k_per_m=None,
 ) -> np.ndarray:
     """Unaccomplished temperature fraction at the geometric centre of a finite cylinder.
 
-    Method: product solution of the infinite-cylinder Bessel series and the infinite-slab cosine
-    series (Carslaw & Jaeger [1]; Powers [2], ch. 5), for a step in surface temperature at
-    ``t = 0`` with the surface then held at the retort temperature (Dirichlet).
+    Method: product solution of the infinite-cylinder Bessel series and the infinite-slab series
+    (Carslaw & Jaeger [1]; Powers [2], ch. 5) for a step in retort temperature at ``t = 0``;
+    surface at the retort temperature, or with a finite ``h`` the Biot-root series
+    (``λ J1(λ) = Bi J0(λ)`` with ``Bi = h R / k``; ``λ tan λ = Bi`` with ``Bi = h (H/2) / k``)
+    ([1] ch. III, VII; Incropera & DeWitt [4] §5.5-5.6, §5.8).
 
     Parameters
     ----------
     time_min : array_like
-        Time since the surface temperature step [min]; times <= 0 give 1.
+        Time since the retort temperature step [min]; times <= 0 give 1.
     diffusivity_m2_s : float
         Thermal diffusivity of the product [m²/s].
     radius_m : float
@@ -254,6 +425,10 @@ def cylinder_centre_unaccomplished(
     n_terms : int, optional
         Number of terms in each series (>= 40). Short times are handled without oscillation
         whatever the number of terms.
+    h_over_k_per_m : float, optional
+        Surface heat transfer coefficient over the product's thermal conductivity, ``h / k``
+        [1/m], the same on the side and the ends. ``None`` (default) or ``inf``: surface held at
+        the retort temperature.
 
     Returns
     -------
@@ -265,85 +440,95 @@ def cylinder_centre_unaccomplished(
     ----------
     .. [1] Carslaw & Jaeger, *Conduction of Heat in Solids*, 2nd ed., 1959, ch. III, VII.
     .. [2] D. L. Powers, *Boundary Value Problems*, ch. 5.
+    .. [4] Incropera & DeWitt, *Fundamentals of Heat and Mass Transfer*, ch. 5.
     """
-    alpha = _positive("diffusivity_m2_s", diffusivity_m2_s)
-    radius = _positive("radius_m", radius_m)
-    half = 0.5 * _positive("height_m", height_m)
-    n = _n_terms(n_terms)
-    t_s = _time_s(time_min)
-    s_cyl = _evaluate(alpha * t_s / radius**2, _cylinder_sorted, n)
-    s_slab = _evaluate(alpha * t_s / half**2, _slab_sorted, n)
-    return np.clip(s_cyl * s_slab, 0.0, 1.0)
+    return _centre_unaccomplished(time_min, diffusivity_m2_s, _cylinder_axes(radius_m, height_m),
+                                  h_over_k_per_m, n_terms)
 
 
 def brick_centre_unaccomplished(
-    time_min, diffusivity_m2_s, length_m, width_m, thickness_m, n_terms=DEFAULT_N_TERMS
+    time_min, diffusivity_m2_s, length_m, width_m, thickness_m, n_terms=DEFAULT_N_TERMS, *,
+    h_over_k_per_m=None,
 ) -> np.ndarray:
     """Unaccomplished temperature fraction at the centre of a brick (rectangular container).
 
     Method: product of three infinite-slab series (Carslaw & Jaeger [1], ch. III, and the product
-    rule), surface held at the retort temperature from ``t = 0``.
+    rule); surface at the retort temperature, or with a finite ``h`` the Biot-root series on
+    each axis (``λ tan λ = Bi``, ``Bi = h (side/2) / k``; Incropera & DeWitt [4] §5.5, §5.8).
 
     Parameters
     ----------
     time_min : array_like
-        Time since the surface temperature step [min]; times <= 0 give 1.
+        Time since the retort temperature step [min]; times <= 0 give 1.
     diffusivity_m2_s : float
         Thermal diffusivity of the product [m²/s].
     length_m, width_m, thickness_m : float
         Inside dimensions of the container [m].
     n_terms : int, optional
         Number of terms in each slab series (>= 40).
+    h_over_k_per_m : float, optional
+        Surface heat transfer coefficient over the product's thermal conductivity, ``h / k``
+        [1/m], the same on every face. ``None`` (default) or ``inf``: surface held at the retort
+        temperature.
 
     Returns
     -------
     numpy.ndarray
-        ``S = (T_R - T) / (T_R - T_0)`` at the centre [-], in [0, 1], shape of ``time_min``.
+        ``S = (T_R - T) / (T_R - T_0)`` at the centre [-], in [0, 1], shape of ``time_min``;
+        ``S(0) = 1`` exactly.
 
     References
     ----------
     .. [1] Carslaw & Jaeger, *Conduction of Heat in Solids*, 2nd ed., 1959, ch. III.
+    .. [4] Incropera & DeWitt, *Fundamentals of Heat and Mass Transfer*, ch. 5.
     """
-    alpha = _positive("diffusivity_m2_s", diffusivity_m2_s)
-    n = _n_terms(n_terms)
-    t_s = _time_s(time_min)
-    s = np.ones_like(t_s)
-    for name, side in (("length_m", length_m), ("width_m", width_m), ("thickness_m", thickness_m)):
-        half = 0.5 * _positive(name, side)
-        s = s * _evaluate(alpha * t_s / half**2, _slab_sorted, n)
-    return np.clip(s, 0.0, 1.0)
+    return _centre_unaccomplished(time_min, diffusivity_m2_s,
+                                  _brick_axes(length_m, width_m, thickness_m), h_over_k_per_m,
+                                  n_terms)
 
 
 # --- first-term relations: fh, diffusivity, theoretical jh -------------------------------------
 #
-# Late in heating only the first term of each series survives, S ≈ j · exp(-λ t) with
-# λ = α (β1²/R² + π²/H²) [1/s] for a finite cylinder (β1 the first zero of J0, H the full height:
-# the slab's first rate is π²α/(4a²) = π²α/H²). On log10 S against t the slope is -λ/ln10, and
-# Ball's fh is minus its reciprocal: fh = ln10 / λ [s] = ln10 / (60 λ) [min]. This is the
-# Olson & Jackson (1942) relation [3]; the form is derived here from the series' first term
-# (the published form quoted from memory agrees with it).
+# Late in heating only the first term of each series survives, S ≈ jh · exp(-λ t) with
+# λ = α Σ λ1²/a² [1/s] over the axes (a the radius or half-side, λ1 the first eigenvalue at that
+# axis's Bi; with the surface at the retort temperature, β1²/R² + π²/H² for a finite cylinder,
+# H the full height) and jh the product of the axes' first coefficients C1. On log10 S against t
+# the slope is -λ/ln10, and Ball's fh is minus its reciprocal: fh = ln10 / λ [s] =
+# ln10 / (60 λ) [min]. With the surface at the retort temperature this is the Olson & Jackson
+# (1942) relation [3]; the form is derived here from the series' first term (the published form
+# quoted from memory agrees with it).
 
 _BETA1 = float(jn_zeros(0, 1)[0])
 
 
-def _cylinder_shape_factor_m2(radius_m, height_m) -> float:
-    radius = _positive("radius_m", radius_m)
-    height = _positive("height_m", height_m)
-    return _BETA1**2 / radius**2 + math.pi**2 / height**2
+def _first_mode(axes, h_over_k) -> tuple[float, float]:
+    """First-mode decay rate per unit diffusivity ``Σ λ1²/a²`` [1/m²] and centre jh ``Π C1`` [-]."""
+    rate_per_alpha_m2, jh = 0.0, 1.0
+    for kind, length_m in axes:
+        biot = None if h_over_k is None else h_over_k * length_m
+        lam, coeffs = _MODES[kind](biot, 1)
+        rate_per_alpha_m2 += float(lam[0]) ** 2 / length_m**2
+        jh *= float(coeffs[0])
+    return rate_per_alpha_m2, jh
 
 
-def _brick_shape_factor_m2(length_m, width_m, thickness_m) -> float:
-    length = _positive("length_m", length_m)
-    width = _positive("width_m", width_m)
-    thickness = _positive("thickness_m", thickness_m)
-    return math.pi**2 * (1.0 / length**2 + 1.0 / width**2 + 1.0 / thickness**2)
+def _diffusivity_from_fh(fh_min, axes, h_over_k_per_m) -> float:
+    fh_s = _positive("fh_min", fh_min) * SECONDS_PER_MINUTE
+    return LN10 / (fh_s * _first_mode(axes, _surface_h_over_k(h_over_k_per_m))[0])
 
 
-def diffusivity_from_fh_cylinder(fh_min, radius_m, height_m) -> float:
+def _fh_from_diffusivity(diffusivity_m2_s, axes, h_over_k_per_m) -> float:
+    alpha = _positive("diffusivity_m2_s", diffusivity_m2_s)
+    rate_per_alpha_m2 = _first_mode(axes, _surface_h_over_k(h_over_k_per_m))[0]
+    return LN10 / (alpha * rate_per_alpha_m2) / SECONDS_PER_MINUTE
+
+
+def diffusivity_from_fh_cylinder(fh_min, radius_m, height_m, *, h_over_k_per_m=None) -> float:
     """Thermal diffusivity from the heating rate index of a finite cylinder.
 
     Method: first-term decay of the conduction series (Olson & Jackson 1942 [3]),
-    ``fh = ln10 / (α (β1²/R² + π²/H²))`` with fh in seconds.
+    ``fh = ln10 / (α (λr²/R² + λz²/(H/2)²))`` with fh in seconds; with the surface at the retort
+    temperature ``λr = β1 = 2.4048``, ``λz = π/2``, otherwise the first Biot roots.
 
     Parameters
     ----------
@@ -353,6 +538,9 @@ def diffusivity_from_fh_cylinder(fh_min, radius_m, height_m) -> float:
         Inside radius [m].
     height_m : float
         Inside (full) height [m].
+    h_over_k_per_m : float, optional
+        Surface heat transfer coefficient over thermal conductivity ``h / k`` [1/m]; ``None``:
+        surface at the retort temperature.
 
     Returns
     -------
@@ -363,14 +551,15 @@ def diffusivity_from_fh_cylinder(fh_min, radius_m, height_m) -> float:
     ----------
     .. [3] Olson & Jackson, *Ind. Eng. Chem.* 34 (1942) 337-341.
     """
-    fh_s = _positive("fh_min", fh_min) * SECONDS_PER_MINUTE
-    return LN10 / (fh_s * _cylinder_shape_factor_m2(radius_m, height_m))
+    return _diffusivity_from_fh(fh_min, _cylinder_axes(radius_m, height_m), h_over_k_per_m)
 
 
-def fh_from_diffusivity_cylinder(diffusivity_m2_s, radius_m, height_m) -> float:
+def fh_from_diffusivity_cylinder(diffusivity_m2_s, radius_m, height_m, *,
+                                 h_over_k_per_m=None) -> float:
     """Heating rate index of a finite cylinder from the thermal diffusivity.
 
-    Method: first-term decay of the conduction series (Olson & Jackson 1942 [3]).
+    Method: first-term decay of the conduction series (Olson & Jackson 1942 [3]), eigenvalues
+    as in :func:`diffusivity_from_fh_cylinder`.
 
     Parameters
     ----------
@@ -380,6 +569,8 @@ def fh_from_diffusivity_cylinder(diffusivity_m2_s, radius_m, height_m) -> float:
         Inside radius [m].
     height_m : float
         Inside (full) height [m].
+    h_over_k_per_m : float, optional
+        ``h / k`` of the surface [1/m]; ``None``: surface at the retort temperature.
 
     Returns
     -------
@@ -390,15 +581,18 @@ def fh_from_diffusivity_cylinder(diffusivity_m2_s, radius_m, height_m) -> float:
     ----------
     .. [3] Olson & Jackson, *Ind. Eng. Chem.* 34 (1942) 337-341.
     """
-    alpha = _positive("diffusivity_m2_s", diffusivity_m2_s)
-    return LN10 / (alpha * _cylinder_shape_factor_m2(radius_m, height_m)) / SECONDS_PER_MINUTE
+    return _fh_from_diffusivity(diffusivity_m2_s, _cylinder_axes(radius_m, height_m),
+                                h_over_k_per_m)
 
 
-def diffusivity_from_fh_brick(fh_min, length_m, width_m, thickness_m) -> float:
+def diffusivity_from_fh_brick(fh_min, length_m, width_m, thickness_m, *,
+                              h_over_k_per_m=None) -> float:
     """Thermal diffusivity from the heating rate index of a brick.
 
     Method: first-term decay of the three slab series (Olson & Jackson 1942 [3]),
-    ``fh = ln10 / (α π² (1/L² + 1/W² + 1/T²))`` with fh in seconds.
+    ``fh = ln10 / (α Σ λi²/(Li/2)²)`` with fh in seconds; ``λi = π/2`` with the surface at the
+    retort temperature (``fh = ln10 / (α π² (1/L² + 1/W² + 1/T²))``), otherwise the first root
+    of ``λ tan λ = h (Li/2) / k``.
 
     Parameters
     ----------
@@ -406,6 +600,8 @@ def diffusivity_from_fh_brick(fh_min, length_m, width_m, thickness_m) -> float:
         Heating rate index fh [min].
     length_m, width_m, thickness_m : float
         Inside dimensions [m].
+    h_over_k_per_m : float, optional
+        ``h / k`` of the surface [1/m]; ``None``: surface at the retort temperature.
 
     Returns
     -------
@@ -416,14 +612,16 @@ def diffusivity_from_fh_brick(fh_min, length_m, width_m, thickness_m) -> float:
     ----------
     .. [3] Olson & Jackson, *Ind. Eng. Chem.* 34 (1942) 337-341.
     """
-    fh_s = _positive("fh_min", fh_min) * SECONDS_PER_MINUTE
-    return LN10 / (fh_s * _brick_shape_factor_m2(length_m, width_m, thickness_m))
+    return _diffusivity_from_fh(fh_min, _brick_axes(length_m, width_m, thickness_m),
+                                h_over_k_per_m)
 
 
-def fh_from_diffusivity_brick(diffusivity_m2_s, length_m, width_m, thickness_m) -> float:
+def fh_from_diffusivity_brick(diffusivity_m2_s, length_m, width_m, thickness_m, *,
+                              h_over_k_per_m=None) -> float:
     """Heating rate index of a brick from the thermal diffusivity.
 
-    Method: first-term decay of the three slab series (Olson & Jackson 1942 [3]).
+    Method: first-term decay of the three slab series (Olson & Jackson 1942 [3]), eigenvalues as
+    in :func:`diffusivity_from_fh_brick`.
 
     Parameters
     ----------
@@ -431,6 +629,8 @@ def fh_from_diffusivity_brick(diffusivity_m2_s, length_m, width_m, thickness_m) 
         Thermal diffusivity [m²/s].
     length_m, width_m, thickness_m : float
         Inside dimensions [m].
+    h_over_k_per_m : float, optional
+        ``h / k`` of the surface [1/m]; ``None``: surface at the retort temperature.
 
     Returns
     -------
@@ -441,67 +641,119 @@ def fh_from_diffusivity_brick(diffusivity_m2_s, length_m, width_m, thickness_m) 
     ----------
     .. [3] Olson & Jackson, *Ind. Eng. Chem.* 34 (1942) 337-341.
     """
-    alpha = _positive("diffusivity_m2_s", diffusivity_m2_s)
-    shape = _brick_shape_factor_m2(length_m, width_m, thickness_m)
-    return LN10 / (alpha * shape) / SECONDS_PER_MINUTE
+    return _fh_from_diffusivity(diffusivity_m2_s, _brick_axes(length_m, width_m, thickness_m),
+                                h_over_k_per_m)
 
 
-def theoretical_centre_jh_cylinder() -> float:
-    """Theoretical jh at the centre of a finite cylinder: ``2/(β1 J1(β1)) · 4/π ≈ 1.602 · 1.273``.
+def _theoretical_jh(axes_of, dims, h_over_k_per_m) -> float:
+    h_over_k = _surface_h_over_k(h_over_k_per_m)
+    if any(d is None for d in dims):
+        if h_over_k is not None:
+            raise ModelInputError("with h_over_k_per_m the theoretical jh depends on the "
+                                  "container's size; expected its dimensions [m]")
+        dims = (1.0,) * len(dims)  # surface at the retort temperature: jh is the same at any size
+    return _first_mode(axes_of(*dims), h_over_k)[1]
+
+
+def theoretical_centre_jh_cylinder(radius_m=None, height_m=None, *, h_over_k_per_m=None) -> float:
+    """Theoretical jh at the centre of a finite cylinder: ``C1(Bi_R) · C1(Bi_H/2)``.
+
+    With the surface at the retort temperature ``2/(β1 J1(β1)) · 4/π ≈ 1.602 · 1.273 ≈ 2.040``
+    whatever the size; with a finite ``h`` it falls towards 1 as Bi falls (see
+    :func:`first_coefficient_cylinder`, :func:`first_coefficient_slab`), so a measured jh is
+    compared with the value at the container's Bi.
+
+    Parameters
+    ----------
+    radius_m, height_m : float, optional
+        Inside radius and (full) height [m]; needed only with ``h_over_k_per_m``.
+    h_over_k_per_m : float, optional
+        ``h / k`` of the surface [1/m]; ``None``: surface at the retort temperature.
 
     Returns
     -------
     float
-        jh [-] (≈ 2.040).
+        jh [-].
 
     References
     ----------
     .. [1] Carslaw & Jaeger, *Conduction of Heat in Solids*, 2nd ed., 1959.
     .. [2] D. L. Powers, *Boundary Value Problems*, ch. 5.
     """
-    return 2.0 / (_BETA1 * float(j1(_BETA1))) * 4.0 / math.pi
+    return _theoretical_jh(_cylinder_axes, (radius_m, height_m), h_over_k_per_m)
 
 
-def theoretical_centre_jh_brick() -> float:
-    """Theoretical jh at the centre of a brick: ``(4/π)³ ≈ 1.273³``.
+def theoretical_centre_jh_brick(length_m=None, width_m=None, thickness_m=None, *,
+                                h_over_k_per_m=None) -> float:
+    """Theoretical jh at the centre of a brick: the product of the three slabs' ``C1(Bi)``.
+
+    With the surface at the retort temperature ``(4/π)³ ≈ 1.273³ ≈ 2.064`` whatever the size.
+
+    Parameters
+    ----------
+    length_m, width_m, thickness_m : float, optional
+        Inside dimensions [m]; needed only with ``h_over_k_per_m``.
+    h_over_k_per_m : float, optional
+        ``h / k`` of the surface [1/m]; ``None``: surface at the retort temperature.
 
     Returns
     -------
     float
-        jh [-] (≈ 2.064).
+        jh [-].
 
     References
     ----------
     .. [1] Carslaw & Jaeger, *Conduction of Heat in Solids*, 2nd ed., 1959.
     """
-    return (4.0 / math.pi) ** 3
+    return _theoretical_jh(_brick_axes, (length_m, width_m, thickness_m), h_over_k_per_m)
 
 
 # ---------------------------------------------------------------------------------------------
-# A finite surface heat transfer coefficient (Biot boundary): first eigenvalues and fh.
+# First eigenvalue and coefficient of one axis at a given Biot number.
+
+
+def _biot(biot) -> float | None:
+    if biot is None or math.isinf(biot):
+        return None
+    return _positive("biot", biot)
 
 
 def first_eigenvalue_slab(biot) -> float:
     """First root λ1 of ``λ tan λ = Bi`` (slab, half-thickness L, Bi = h L / k) [-].
 
     ``biot=None`` (or inf) is the surface held at the retort temperature: λ1 = π/2.
-    Carslaw & Jaeger, *Conduction of Heat in Solids*, §3.10 (section from memory).
+    Carslaw & Jaeger, *Conduction of Heat in Solids*, ch. III (section from memory).
     """
-    if biot is None or math.isinf(biot):
-        return math.pi / 2.0
-    bi = _positive("biot", biot)
-    return float(brentq(lambda x: x * math.sin(x) - bi * math.cos(x), 1e-12, math.pi / 2.0, xtol=1e-15))
+    return float(_slab_modes(_biot(biot), 1)[0][0])
 
 
 def first_eigenvalue_cylinder(biot) -> float:
     """First root λ1 of ``λ J1(λ) = Bi J0(λ)`` (infinite cylinder, Bi = h R / k) [-].
 
-    ``biot=None`` (or inf): the first zero of J0, 2.4048. Carslaw & Jaeger §7.6 (from memory).
+    ``biot=None`` (or inf): the first zero of J0, 2.4048. Carslaw & Jaeger, ch. VII (section from
+    memory).
     """
-    if biot is None or math.isinf(biot):
-        return _BETA1
-    bi = _positive("biot", biot)
-    return float(brentq(lambda x: x * j1(x) - bi * j0(x), 1e-12, _BETA1, xtol=1e-15))
+    return float(_cylinder_modes(_biot(biot), 1)[0][0])
+
+
+def first_coefficient_slab(biot) -> float:
+    """First coefficient C1 of the mid-plane series of a slab (Bi = h L / k, L half-thickness) [-].
+
+    ``C1 = 2 sin λ1 / (λ1 + sin λ1 cos λ1)``; ``biot=None`` (or inf): 4/π. The theoretical
+    mid-plane jh of the slab. Incropera & DeWitt, *Fundamentals of Heat and Mass Transfer*,
+    Table 5.1 (C1, plane wall).
+    """
+    return float(_slab_modes(_biot(biot), 1)[1][0])
+
+
+def first_coefficient_cylinder(biot) -> float:
+    """First coefficient C1 of the axis series of an infinite cylinder (Bi = h R / k) [-].
+
+    ``C1 = 2 J1(λ1) / (λ1 (J0(λ1)² + J1(λ1)²))`` ``= 2 Bi / ((λ1² + Bi²) J0(λ1))``;
+    ``biot=None`` (or inf): ``2/(β1 J1(β1)) = 1.602``. Incropera & DeWitt, Table 5.1 (C1,
+    infinite cylinder).
+    """
+    return float(_cylinder_modes(_biot(biot), 1)[1][0])
 
 
 def decay_rate_cylinder_s(diffusivity_m2_s, radius_m, height_m, h_over_k_per_m=None) -> float:
@@ -510,18 +762,13 @@ def decay_rate_cylinder_s(diffusivity_m2_s, radius_m, height_m, h_over_k_per_m=N
     ``h_over_k_per_m`` is h/k of the surface [1/m]; ``None`` for the surface at the retort
     temperature (then ``ln10 / rate`` is the fh of :func:`fh_from_diffusivity_cylinder`).
     """
-    R, half = _positive("radius_m", radius_m), _positive("height_m", height_m) / 2.0
-    bi_r = None if h_over_k_per_m is None else h_over_k_per_m * R
-    bi_z = None if h_over_k_per_m is None else h_over_k_per_m * half
-    lr, lz = first_eigenvalue_cylinder(bi_r), first_eigenvalue_slab(bi_z)
-    return _positive("diffusivity_m2_s", diffusivity_m2_s) * (lr**2 / R**2 + lz**2 / half**2)
+    axes = _cylinder_axes(radius_m, height_m)
+    rate_per_alpha_m2 = _first_mode(axes, _surface_h_over_k(h_over_k_per_m))[0]
+    return _positive("diffusivity_m2_s", diffusivity_m2_s) * rate_per_alpha_m2
 
 
 def decay_rate_brick_s(diffusivity_m2_s, length_m, width_m, thickness_m, h_over_k_per_m=None) -> float:
     """First-mode decay rate at the centre of a brick [1/s]: α Σ λi²/(Li/2)²."""
-    rate = 0.0
-    for name, full in (("length_m", length_m), ("width_m", width_m), ("thickness_m", thickness_m)):
-        half = _positive(name, full) / 2.0
-        lam = first_eigenvalue_slab(None if h_over_k_per_m is None else h_over_k_per_m * half)
-        rate += lam**2 / half**2
-    return _positive("diffusivity_m2_s", diffusivity_m2_s) * rate
+    axes = _brick_axes(length_m, width_m, thickness_m)
+    rate_per_alpha_m2 = _first_mode(axes, _surface_h_over_k(h_over_k_per_m))[0]
+    return _positive("diffusivity_m2_s", diffusivity_m2_s) * rate_per_alpha_m2
