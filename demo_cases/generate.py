@@ -59,13 +59,12 @@ def retort_trace(p: dict, *, step_min=0.5, start_C=28.0, come_up_min=None, hold_
 def _predicted_cold_spot(p: dict, t, T, *, initial_C: float, seed: int) -> np.ndarray:
     """A cold-spot trace for the demo: the conduction model's answer plus thermocouple noise."""
     from deviation.inputs.case import Process
-    from deviation.evaluate import cold_spot_model, deliver
+    from deviation.evaluate.cold_spot import cold_spot_model, deliver
     from deviation.inputs.logs import RetortProfile
 
     process = Process.model_validate(p)
     model = cold_spot_model(process)
-    d = deliver(RetortProfile(t, T, "demo", None), initial_C, process, model, conservative=False,
-                cooling_start_min=None)
+    d = deliver(RetortProfile(t, T, "demo", None), initial_C, process, model, conservative=False)
     rng = np.random.default_rng(seed)
     return np.round(np.interp(t, d.time_min, d.cold_spot_C) + rng.normal(0.0, 0.05, t.size), 2)
 

@@ -24,8 +24,6 @@ from deviation.physics.lethality import general_method
 # The finest and coarsest grid the cold-spot prediction runs on [min]: the recorder's own
 # interval within these bounds (piecewise-linear superposition is exact between grid points).
 _FINEST_STEP_MIN = 1.0 / 60.0
-
-
 _COARSEST_STEP_MIN = 0.1
 
 
@@ -33,15 +31,26 @@ _COARSEST_STEP_MIN = 0.1
 class ColdSpotModel:
     """Step responses (fraction unaccomplished) of the cold spot for one process.
 
-    ``fd`` is set for the finite-difference model: ``fd(time_min, retort_C, initial_C)`` returns
-    the solver's result (cold spot and final field); ``heating`` is then ``None``.
+    ``heating`` answers every rise of the retort temperature and ``falling`` every fall (the
+    bounding heating-curve model, where they differ); with ``falling`` None one linear kernel
+    answers both (the conduction series, exact for a linear conduction model). ``fd`` is set for
+    the finite-difference model: ``fd(time_min, retort_C, initial_C)`` returns the solver's
+    result (cold spot and final field); ``heating`` is then ``None``.
     """
 
     name: str
     heating: Callable[[np.ndarray], np.ndarray] | None
-    cooling: Callable[[np.ndarray], np.ndarray] | None
+    falling: Callable[[np.ndarray], np.ndarray] | None
     fh_min: float
     fd: Callable[..., Any] | None = None
+    h_over_k_per_m: float | None = None  # the Biot boundary's h/k [1/m]; None: surface at the retort
+
+
+def _h_over_k(process: Process) -> float | None:
+    hp = process.heat_penetration
+    if hp.surface_heat_transfer_W_m2K is None:
+        return None
+    return hp.surface_heat_transfer_W_m2K / hp.thermal_conductivity_W_mK
 
 
 def _finite_difference_model(process: Process) -> ColdSpotModel:
@@ -49,7 +58,7 @@ def _finite_difference_model(process: Process) -> ColdSpotModel:
     from deviation.physics.heating import finite_difference as fdm
 
     hp, box = process.heat_penetration, process.container
-    h_over_k = (hp.surface_htc_W_m2K / hp.thermal_conductivity_W_mK) if hp.surface_htc_W_m2K else None
+    h_over_k = _h_over_k(process)
     if box.shape == "cylinder":
         radius_m, height_m = box.diameter_mm / 2000.0, box.height_mm / 1000.0
         rate_per_alpha = conduction.decay_rate_cylinder_s(1.0, radius_m, height_m, h_over_k)
@@ -67,39 +76,51 @@ def _finite_difference_model(process: Process) -> ColdSpotModel:
 
     def run(time_min, retort_C, initial_C):
         return solver(time_min, retort_C, initial_C=initial_C, diffusivity_m2_s=alpha,
-                      surface_htc_W_m2K=hp.surface_htc_W_m2K,
+                      surface_htc_W_m2K=hp.surface_heat_transfer_W_m2K,
                       thermal_conductivity_W_mK=hp.thermal_conductivity_W_mK, **dims)
 
-    return ColdSpotModel("finite-difference", None, None, float(fh), fd=run)
+    return ColdSpotModel("finite-difference", None, None, float(fh), fd=run, h_over_k_per_m=h_over_k)
 
 
 def cold_spot_model(process: Process) -> ColdSpotModel:
-    """Build the heat-penetration model named in ``[process.heat_penetration]``."""
+    """Build the heat-penetration model named in ``[process.heat_penetration]``.
+
+    - ``conduction``: the analytical centre series (Carslaw & Jaeger), surface at the retort
+      temperature or, with ``surface_heat_transfer_W_m2K``, a Biot boundary; a filed fh (which
+      already holds the surface's effect) is mapped to the diffusivity through the Biot
+      eigenvalues, so the surface is not counted twice.
+    - ``heating-curve``: Ball's parameters read as the bounding pair of step responses
+      (:func:`deviation.physics.heating.heating_curve.bounding_kernels`): rises answered by
+      Ball's lag form, falls by the fast two-stage form, so the cold spot never runs ahead of
+      the product.
+    - ``finite-difference``: Teixeira et al. (1969).
+    """
     hp, box = process.heat_penetration, process.container
     if hp.model == "finite-difference":
         return _finite_difference_model(process)
     if hp.model == "conduction":
+        h_over_k = _h_over_k(process)
         if box.shape == "cylinder":
             radius_m, height_m = box.diameter_mm / 2000.0, box.height_mm / 1000.0
             alpha = hp.thermal_diffusivity_m2_s or conduction.diffusivity_from_fh_cylinder(
-                hp.fh_min, radius_m, height_m)
-            fh = hp.fh_min or conduction.fh_from_diffusivity_cylinder(alpha, radius_m, height_m)
+                hp.fh_min, radius_m, height_m, h_over_k_per_m=h_over_k)
+            fh = hp.fh_min or conduction.fh_from_diffusivity_cylinder(
+                alpha, radius_m, height_m, h_over_k_per_m=h_over_k)
             fn = functools.partial(conduction.cylinder_centre_unaccomplished,
-                                   diffusivity_m2_s=alpha, radius_m=radius_m, height_m=height_m)
+                                   diffusivity_m2_s=alpha, radius_m=radius_m, height_m=height_m,
+                                   h_over_k_per_m=h_over_k)
         else:
             dims = box.length_mm / 1000.0, box.width_mm / 1000.0, box.thickness_mm / 1000.0
-            alpha = hp.thermal_diffusivity_m2_s or conduction.diffusivity_from_fh_brick(hp.fh_min, *dims)
-            fh = hp.fh_min or conduction.fh_from_diffusivity_brick(alpha, *dims)
+            alpha = hp.thermal_diffusivity_m2_s or conduction.diffusivity_from_fh_brick(
+                hp.fh_min, *dims, h_over_k_per_m=h_over_k)
+            fh = hp.fh_min or conduction.fh_from_diffusivity_brick(alpha, *dims, h_over_k_per_m=h_over_k)
             fn = functools.partial(conduction.brick_centre_unaccomplished, diffusivity_m2_s=alpha,
-                                   length_m=dims[0], width_m=dims[1], thickness_m=dims[2])
-        return ColdSpotModel("conduction", fn, None, float(fh))
+                                   length_m=dims[0], width_m=dims[1], thickness_m=dims[2],
+                                   h_over_k_per_m=h_over_k)
+        return ColdSpotModel("conduction", fn, None, float(fh), h_over_k_per_m=h_over_k)
     if hp.model == "heating-curve":
-        heat = functools.partial(heating_curve.step_unaccomplished, fh_min=hp.fh_min, jh=hp.jh)
-        cool = None
-        if hp.fc_min is not None:
-            # jc defaults to 1 (no cooling lag): the cold spot then credits the least cooling lethality.
-            cool = functools.partial(heating_curve.step_unaccomplished, fh_min=hp.fc_min, jh=hp.jc or 1.0)
-        return ColdSpotModel("heating-curve", heat, cool, float(hp.fh_min))
+        rise, fall = heating_curve.bounding_kernels(hp.fh_min, hp.jh, hp.fc_min, hp.jc)
+        return ColdSpotModel("heating-curve", rise, fall, float(hp.fh_min))
     raise ModelError(f"unknown heat-penetration model {hp.model!r}", source="process.heat_penetration.model")
 
 
@@ -116,38 +137,57 @@ class Delivered:
     cumulative_F_min: np.ndarray
     F_min: float
     final_field_C: np.ndarray | None = None  # finite-difference model only
+    conservative: bool = False  # the lower reading between samples was taken
+    uncredited_min: tuple = ()  # windows [min] in which no lethality was credited
 
 
-def model_grid(profile: prof.RetortProfile, conservative: bool, cooling_start_min: float | None):
-    """The uniform grid (from 0) the models run on, the retort on it, and steam-off on the grid."""
+def model_grid(profile: prof.RetortProfile, conservative: bool, model: ColdSpotModel | None = None):
+    """The uniform grid (from 0) the models run on and the retort on it.
+
+    The recorder's own interval within 1 s and 0.1 min; the bounding heating-curve model (not a
+    convolution: its cost grows with the grid) always runs on 0.1 min, far finer than any fh.
+
+    ``conservative`` reads a *recorded* profile at the lower reading between samples (FDA, Guide
+    to Inspections of Low Acid Canned Food Manufacturers, Part 1: a single reading does not show
+    the temperature stayed above a value between readings); a profile built from the filed
+    process is exact between its points and is read as it is.
+    """
     t0 = float(profile.time_min[0])
-    shifted = replace(profile, time_min=profile.time_min - t0)
-    step = _grid_step(shifted.time_min)
-    grid, retort = cycle.resample_uniform(shifted, step, conservative=conservative)
-    start = None
-    if cooling_start_min is not None:
-        # Snap steam-off down to the grid, so the segment in which the retort starts to fall
-        # responds with the cooling kernel wherever steam-off falls inside it.
-        start = math.floor((cooling_start_min - t0) / step + 1e-9) * step
-    return t0, grid, retort, start
+    shifted = replace(profile, time_min=profile.time_min - t0, indicating_C=None)
+    step = _COARSEST_STEP_MIN if model is not None and model.falling is not None else _grid_step(shifted.time_min)
+    grid, retort = cycle.resample_uniform(shifted, step, conservative=conservative and profile.recorded)
+    return t0, grid, retort
 
 
 def deliver(profile: prof.RetortProfile, initial_C: float, process: Process, model: ColdSpotModel,
-            *, conservative: bool, cooling_start_min: float | None) -> Delivered:
-    """Predict the cold spot for a retort profile and integrate its lethality (General Method)."""
-    t0, grid, retort, start = model_grid(profile, conservative, cooling_start_min)
+            *, conservative: bool, uncredited_min=(), max_ages: int | None = None) -> Delivered:
+    """Predict the cold spot for a retort profile and integrate its lethality (General Method).
+
+    ``uncredited_min``: time windows [min] in which no lethality is credited (gaps in the
+    record longer than allowed). ``max_ages``: a coarser resolution of the bounding
+    heating-curve model (faster, and only lower), for searches.
+    """
+    conservative = conservative and profile.recorded
+    t0, grid, retort = model_grid(profile, conservative, model)
     field = None
     if model.fd is not None:
         result = model.fd(grid, retort, initial_C)
         cold, field = result.cold_spot_C, result.final_field_C
     else:
-        cooling_kw = {}
-        if model.cooling is not None and start is not None:
-            cooling_kw = dict(cooling_unaccomplished=model.cooling, cooling_start_min=start)
-        cold = superpose(grid, retort, initial_C, model.heating, **cooling_kw)
+        extra = {} if max_ages is None or model.falling is None else {"max_ages": max_ages}
+        cold = superpose(grid, retort, initial_C, model.heating, falling_unaccomplished=model.falling, **extra)
     F, cum = general_method(grid, cold, process.reference_temperature_C, process.z_C,
-                            conservative=conservative)
-    return Delivered(grid + t0, retort, cold, cum, float(F), field)
+                            conservative=conservative,
+                            uncredited_min=[(a - t0, b - t0) for a, b in uncredited_min])
+    return Delivered(grid + t0, retort, cold, cum, float(F), field, conservative,
+                     tuple(uncredited_min))
+
+
+def F_of(delivered: Delivered, reference_temperature_C: float, z_C: float) -> float:
+    """F [min] of the same cold-spot history at another Tref and z (General Method)."""
+    return float(general_method(delivered.time_min, delivered.cold_spot_C, reference_temperature_C, z_C,
+                                conservative=delivered.conservative,
+                                uncredited_min=delivered.uncredited_min)[0])
 
 
 def filed_profile(process: Process, *, start_C: float, come_up_min: float, hold_min: float,
@@ -180,14 +220,17 @@ def scheduled_profile(process: Process, model: ColdSpotModel) -> prof.RetortProf
 
 
 @functools.lru_cache(maxsize=128)
-def _scheduled_F_cached(process_json: str, conservative: bool) -> float:
+def _scheduled_F_cached(process_json: str) -> float:
     process = Process.model_validate_json(process_json)
     model = cold_spot_model(process)
     return deliver(scheduled_profile(process, model), process.minimum_initial_temperature_C, process, model,
-                   conservative=conservative,
-                   cooling_start_min=process.come_up_time_min + process.process_time_min).F_min
+                   conservative=False).F_min
 
 
-def scheduled_F_min(process: Process, *, conservative: bool = False) -> float:
-    """F [min] the model gives for the filed cycle as scheduled (cached per process)."""
-    return _scheduled_F_cached(process.model_dump_json(), conservative)
+def scheduled_F_min(process: Process) -> float:
+    """F [min] the model gives for the filed cycle as scheduled (cached per process).
+
+    The filed cycle is built from the scheduled process, exact between its points, so the
+    "lower reading between samples" of a recorded log does not apply to it.
+    """
+    return _scheduled_F_cached(process.model_dump_json())

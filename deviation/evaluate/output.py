@@ -27,6 +27,9 @@ class ColdSpot(BaseModel):
     lethal_rate: list[float]
     cumulative_F_min: list[float]
     source: str = Field(description="'measured' or the model used")
+    cumulative_scale: float = Field(
+        1.0, description="Factor applied to the model's cumulative F so it ends at the headline F "
+                         "(target / scheduled F when the relative evaluation is the headline)")
 
 
 class LowIntervalOut(BaseModel):
@@ -59,7 +62,20 @@ class Evaluation(BaseModel):
     retort_id: str
     model: str
     conservative: bool
-    delivered_F_min: float
+    delivered_F_min: float = Field(description="The headline F the guidance stands on [min]")
+    F_basis: str | None = Field(None, description="What the headline F is, in words")
+    model_F_min: float | None = Field(
+        None, description="The model's F on the record: lower reading between samples (unless "
+                          "--interpolate), no heat across gaps over the limit [min]")
+    relative_F_min: float | None = Field(
+        None, description="model F x target / scheduled F: the model's own error cancelled [min]")
+    interpolated_F_min: float | None = Field(
+        None, description="Straight lines between readings, heat credited across gaps: a friendlier "
+                          "figure, not the one the guidance uses [min]")
+    F0_min: float | None = Field(
+        None, description="F at Tref 121.1 °C, z 10 °C of the same cold spot (the botulinum figure) [min]")
+    ball_formula_F_min: float | None = Field(
+        None, description="Ball's formula F for the filed cycle (fh, jh, IT, RT, process time) [min]")
     scheduled_F_min: float
     target_F_min: float
     F_margin_min: float
@@ -74,6 +90,13 @@ class Evaluation(BaseModel):
     target_spoilage_probability: float
     scheduled_spoilage_probability: float
     expected_nonsterile_containers: float
+    log10_spoilage_probability: float | None = None
+    log10_target_spoilage_probability: float | None = None
+    log10_scheduled_spoilage_probability: float | None = None
+    log10_expected_nonsterile_containers: float | None = None
+    lot_nonsterile_probability: float | None = Field(
+        None, description="Probability that at least one container of the lot is nonsterile [-]")
+    log10_lot_nonsterile_probability: float | None = None
     botulinum_log_reductions: float
     botulinum_log_reductions_required: float
     lethality_established: bool

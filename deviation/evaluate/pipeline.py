@@ -8,6 +8,7 @@ Internal units: °C and minutes.
 from __future__ import annotations
 
 import functools
+import math
 from dataclasses import replace
 from typing import Any
 
@@ -15,9 +16,11 @@ import numpy as np
 
 from deviation import ENGINE_VERSION
 from deviation.errors import CaseError, RecordError
+from deviation.evaluate import checks
 from deviation.evaluate.cold_spot import (
     ColdSpotModel,
     Delivered,
+    F_of,
     cold_spot_model,
     cooling_time_min,
     deliver,
@@ -28,27 +31,22 @@ from deviation.evaluate.output import ColdSpot, CycleOut, Evaluation, FlagOut, L
 from deviation.evaluate.whatif import (
     continue_as_filed,
     extension_to_target,
-    gap_worst_case_F,
+    gap_worst_profile,
     monte_carlo,
     reprocess_as_filed,
 )
+from deviation.guidance.vocabulary import INFORMATION_FLAG_CODES
 from deviation.inputs import cycle
 from deviation.inputs import logs as prof
 from deviation.inputs.case import Case, LoadedCase, Process
 from deviation.physics.lethality import general_method, lethal_rate
 from deviation.physics.spoilage import (
     expected_nonsterile_containers,
+    log10_nonsterile_probability,
     log_reductions,
+    lot_nonsterile_probability,
     nonsterile_probability,
 )
-
-# ---------------------------------------------------------------------------------------------
-# Output model
-
-
-# ---------------------------------------------------------------------------------------------
-# Cold-spot models
-
 
 # ---------------------------------------------------------------------------------------------
 # The pipeline
@@ -68,13 +66,17 @@ def default_rule_set():
     return rules_mod.load_rule_set([])
 
 
-def build_retort_profile(loaded: LoadedCase, model: ColdSpotModel) -> prof.RetortProfile:
-    """The retort profile: the log if there is one, else the filed cycle with the events laid over it."""
+def build_retort_profile(loaded: LoadedCase, model: ColdSpotModel) -> tuple[prof.RetortProfile, list[FlagOut]]:
+    """The retort profile and the instrument flags: the log if there is one (on the lower of the
+    recorder and the temperature-indicating device), else the filed cycle, with the events laid
+    over it."""
     case = loaded.case
     process, dev = case.process, case.deviation
     events = dev.events
+    flags: list[FlagOut] = []
     if loaded.retort_log_text is not None:
         profile = _parse_cached(loaded.retort_log_text, loaded.retort_log_source or "retort log", "retort")
+        profile, flags = checks.lower_instrument(profile)
     else:
         come_up = process.come_up_time_min
         hold = process.process_time_min
@@ -94,7 +96,7 @@ def build_retort_profile(loaded: LoadedCase, model: ColdSpotModel) -> prof.Retor
                 profile = cycle.apply_temperature_low(profile, ev.start_min, ev.end_min, ev.temperature_C)
             except RecordError as exc:
                 raise CaseError(f"deviation.events[{i}]: {exc.message}", source=loaded.source) from None
-    return profile
+    return profile, flags
 
 
 def _is_running(profile: prof.RetortProfile, analysis: cycle.CycleAnalysis) -> bool:
@@ -148,6 +150,11 @@ def _implausible_flags(case: Case, profile: prof.RetortProfile) -> list[FlagOut]
     return out
 
 
+# Flags that leave the lethality not fully established: the factor, the record or the model
+# cannot be judged by lethality alone.
+_NOT_FULLY_ESTABLISHED = {"critical-factor-out", "record-gap", "scheduled-F-below-target", "model-vs-filed",
+                          "implausible-input"}
+
 # Deviations of the scheduled process that a filed alternate (another temperature and time) can cover.
 _ALTERNATE_CAN_COVER = {"temperature-low", "short-hold", "process-temperature-not-reached", "long-come-up"}
 
@@ -171,32 +178,70 @@ def _alternates(case: Case, profile: prof.RetortProfile, come_up_min: float | No
     return met
 
 
-def _spoilage(F: float, process: Process) -> float:
+def _log10(x: float) -> float | None:
+    return float(math.log10(x)) if x > 0.0 and math.isfinite(x) else None
+
+
+def _spoilage(F: float, process: Process) -> tuple[float, float | None]:
+    """Per-container nonsterile probability of a spoilage F, and its log10 (no underflow)."""
     m = process.microbiology
-    return float(nonsterile_probability(F, m.spoilage_D_min, m.spores_per_container))
+    p = float(nonsterile_probability(F, m.spoilage_D_min, m.spores_per_container))
+    lp = float(log10_nonsterile_probability(F, m.spoilage_D_min, m.spores_per_container))
+    return p, (lp if math.isfinite(lp) else None)
 
 
-def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=None,
+def _settings(rule_set):
+    """The tolerances of the rule set in use (the defaults when guidance is not computed)."""
+    from deviation.guidance import Settings
+
+    if rule_set is None:
+        return default_rule_set().settings
+    return getattr(rule_set, "settings", None) or Settings()
+
+
+def _measured(loaded: LoadedCase, process: Process, profile: prof.RetortProfile,
+              conservative: bool) -> Delivered:
+    """A measured cold-spot log, integrated as it is (the lower reading between samples by default)."""
+    measured = _parse_cached(loaded.cold_spot_log_text, loaded.cold_spot_log_source or "cold-spot log",
+                             "cold-spot")
+    F, cum = general_method(measured.time_min, measured.temperature_C, process.reference_temperature_C,
+                            process.z_C, conservative=conservative)
+    retort_on = np.interp(measured.time_min, profile.time_min, profile.temperature_C)
+    return Delivered(measured.time_min, retort_on, measured.temperature_C, cum, float(F), None, conservative)
+
+
+def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=None,
                   what_if: bool = True, uncertainty: bool | None = None) -> Evaluation:
     """Evaluate one deviation case.
 
     Parameters
     ----------
     loaded : the case with its log contents.
-    conservative : read the retort between two readings at the lower one, and never credit
-        more than the lower lethal rate between samples.
-    rule_set : guidance rules (``deviation.guidance.rules.RuleSet``); ``None`` loads the defaults.
+    conservative : read a recorded log between two readings at the lower one, and never credit
+        more than the lower lethal rate between samples (the default: a single reading does not
+        show the temperature stayed above a value between readings, FDA Guide to Inspections of
+        Low Acid Canned Food Manufacturers, Part 1). False reads straight lines between readings.
+    rule_set : guidance rules (``deviation.guidance.RuleSet``); ``None`` loads the defaults;
+        ``False`` computes no guidance (the default tolerances apply).
     what_if : compute the extension to target (a root search: a few more model runs) and the
         lethality of a full reprocess.
     uncertainty : run the Monte Carlo estimate (``None``: when the case has ``[deviation.uncertainty]``).
+
+    Notes
+    -----
+    The headline ``delivered_F_min`` is the figure the guidance stands on: the model's F on the
+    record (lower reading between samples, no heat credited across a gap over the limit), and,
+    when the model over-predicts the filed process, the lower relative F (model F x target /
+    scheduled F). The friendlier interpolated figure stands beside it, labelled.
     """
     case = loaded.case
     process, dev = case.process, case.deviation
     model = cold_spot_model(process)
     PT = process.process_temperature_C
     micro = process.microbiology
+    settings = _settings(rule_set)
 
-    profile = build_retort_profile(loaded, model)
+    profile, instrument_flags = build_retort_profile(loaded, model)
     analysis = cycle.analyse_cycle(
         profile,
         process_temperature_C=PT,
@@ -207,29 +252,66 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         gap_limit_min=dev.record_gap_limit_min,
     )
     flags = [FlagOut(code=f.code, message=f.message, start_min=f.start_min, end_min=f.end_min, value=f.value)
-             for f in analysis.flags]
+             for f in analysis.flags] + instrument_flags
 
-    # Delivered lethality: measured cold spot integrated directly, else the model on the record.
+    # The model's F on the record: the lower reading between samples, no lethality credited
+    # across a gap over the limit; beside it the interpolated figure (straight lines, gaps
+    # credited as if the record had gone on).
+    t_rec = profile.time_min
+    gaps = [(float(t_rec[i]), float(t_rec[i + 1]))
+            for i in np.flatnonzero(np.diff(t_rec) > dev.record_gap_limit_min)]
     if loaded.cold_spot_log_text is not None:
-        measured = _parse_cached(loaded.cold_spot_log_text, loaded.cold_spot_log_source or "cold-spot log",
-                                 "cold-spot")
-        F, cum = general_method(measured.time_min, measured.temperature_C, process.reference_temperature_C,
-                                process.z_C, conservative=conservative)
-        retort_on = np.interp(measured.time_min, profile.time_min, profile.temperature_C)
-        delivered = Delivered(measured.time_min, retort_on, measured.temperature_C, cum, float(F))
+        delivered = _measured(loaded, process, profile, conservative)
+        interpolated = delivered.F_min if not conservative else _measured(loaded, process, profile, False).F_min
         source = "measured"
     else:
-        delivered = deliver(profile, dev.initial_temperature_C, process, model,
-                            conservative=conservative, cooling_start_min=analysis.hold_end_min)
+        delivered = deliver(profile, dev.initial_temperature_C, process, model, conservative=conservative,
+                            uncredited_min=gaps)
+        interpolated = delivered.F_min
+        if gaps or (conservative and profile.recorded):
+            interpolated = deliver(profile, dev.initial_temperature_C, process, model, conservative=False).F_min
         source = model.name
 
-    scheduled_F = scheduled_F_min(process, conservative=conservative)
-    if scheduled_F < process.target_F_min:
+    scheduled_F = scheduled_F_min(process)
+    target = process.target_F_min
+    z_label = "F0" if (process.z_C == 10.0 and process.reference_temperature_C == 121.1) else "F"
+    if scheduled_F < target:
         flags.append(_flag("scheduled-F-below-target",
-                           f"The model gives F0 {scheduled_F:.2f} min for the filed process as scheduled, "
-                           f"below the filed target {process.target_F_min:.2f} min: it does not reproduce the "
+                           f"The model gives {z_label} {scheduled_F:.2f} min for the filed process as scheduled, "
+                           f"below the filed target {target:.2f} min: it does not reproduce the "
                            "filed process, so the lethality computed here is not fully established.",
                            value=scheduled_F))
+    flags += checks.model_vs_filed(scheduled_F, target, settings.model_vs_filed_tolerance, z_label)
+    ball_F, ball_jh = checks.ball_formula_F(process, model)
+    flags += checks.ball_flags(ball_F, ball_jh, scheduled_F, settings.ball_formula_tolerance, model)
+    flags += checks.parameter_flags(process, model, settings.jh_theory_tolerance)
+    flags += checks.surface_flags(process, model)
+
+    # The headline: the relative F (the model's own error cancelled) where the model over-predicts
+    # the filed process, never a figure above the model's own.
+    model_F = delivered.F_min
+    relative_F = model_F * target / scheduled_F if source != "measured" else None
+    scale = min(1.0, target / scheduled_F) if source != "measured" else 1.0
+    headline = model_F * scale
+    if source == "measured":
+        basis = "measured cold spot, General Method" + (" (lower reading between samples)" if conservative else "")
+    elif scale < 1.0:
+        basis = (f"relative F: the model's F on the record x target / scheduled F ({target:.2f} / "
+                 f"{scheduled_F:.2f}), because the model over-predicts the filed process")
+    else:
+        basis = "the model's F on the record" + (
+            ", lower reading between samples" if conservative and profile.recorded else "") + (
+            ", no lethality credited across gaps over the limit" if gaps else "")
+    F0 = headline if z_label == "F0" else F_of(delivered, 121.1, 10.0) * scale
+    m = micro
+    spoil_z = m.spoilage_z_C if m.spoilage_z_C is not None else process.z_C
+    spoil_ref = (m.spoilage_reference_temperature_C if m.spoilage_reference_temperature_C is not None
+                 else process.reference_temperature_C)
+    same_kinetics = spoil_z == process.z_C and spoil_ref == process.reference_temperature_C
+    spoil_F = headline if same_kinetics else F_of(delivered, spoil_ref, spoil_z) * scale
+    spoil_ratio = spoil_F / headline if headline > 0.0 else 1.0  # the filed figures at the same ratio
+    F0_ratio = F0 / headline if headline > 0.0 else 1.0
+
     cf_flags, cf_rows = _critical_factor_flags(case)
     flags += cf_flags
     flags += _implausible_flags(case, profile)
@@ -244,56 +326,72 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
                            f"{a['held_min']:.1f} min, meeting the filed alternate process "
                            f"({a['process_time_min']:.0f} min at {a['process_temperature_C']:.1f} °C)."))
 
-    # Projection and what-if (only where the model predicts from the retort record).
+    # Projection and what-if (only where the model predicts from the retort record), on the same
+    # footing as the headline.
     running = _is_running(profile, analysis)
-    projected = delivered.F_min
+    projected = headline
     if running and source != "measured":
-        ext_profile, cool_at = continue_as_filed(profile, process, analysis, model)
+        ext_profile, _ = continue_as_filed(profile, process, analysis, model)
         projected = deliver(ext_profile, dev.initial_temperature_C, process, model,
-                            conservative=conservative, cooling_start_min=cool_at).F_min
-    extension, reason = (extension_to_target(loaded, profile, analysis, model, delivered, conservative, source,
-                                    running) if what_if else (None, "not computed"))
+                            conservative=conservative, uncredited_min=gaps).F_min * scale
+    extension, reason = (extension_to_target(loaded, profile, analysis, model, delivered, conservative,
+                                             source, running, target_model_F_min=target / scale,
+                                             uncredited_min=gaps)
+                         if what_if else (None, "not computed"))
 
-    reprocess = (reprocess_as_filed(loaded, model, delivered.F_min, conservative, delivered.final_field_C)
+    reprocess = (reprocess_as_filed(loaded, model, headline, conservative, delivered.final_field_C)
                  if what_if else None)
+    if reprocess is not None and scale < 1.0 and reprocess.get("reprocess_F_min") is not None:
+        reprocess["reprocess_F_min"] *= scale
+        reprocess["total_F_with_reprocess_min"] = headline + reprocess["reprocess_F_min"]
     if uncertainty is None:
         uncertainty = dev.uncertainty is not None
     mc = None
     if uncertainty:
         from deviation.inputs.case import UncertaintySpec
 
-        mc = monte_carlo(loaded, profile, analysis, model, dev.uncertainty or UncertaintySpec(),
-                          conservative, source, delivered.F_min)
+        mc = monte_carlo(loaded, profile, model, dev.uncertainty or UncertaintySpec(),
+                         conservative, source, headline, F_scale=scale, spoilage=(F0_ratio, spoil_ratio))
 
-    # Lethality established / fully established.
-    gap_over = analysis.max_gap_min > dev.record_gap_limit_min
-    # A gap over the limit hides what the retort did. Lethality counts as established for safety
-    # only if, even with no heat at all during every such gap, the botulinum reduction is met.
+    # Lethality established: a gap over the limit inside the hold hides what the retort did;
+    # lethality counts as established for safety only if, even with no heat at all across every
+    # such gap (the retort at the cooling water temperature), the botulinum reduction is met.
+    bot = float(log_reductions(F0, micro.botulinum_D_min))
     established = True
-    worst_gap_F = None
-    if gap_over and source != "measured":
-        worst_gap_F = gap_worst_case_F(profile, analysis, dev.record_gap_limit_min, loaded, model, conservative)
-        if worst_gap_F is not None and (log_reductions(worst_gap_F, micro.botulinum_D_min)
-                                        < micro.botulinum_log_reductions_required):
-            established = False
+    worst_F0 = None
+    worst = (gap_worst_profile(profile, analysis, dev.record_gap_limit_min, process.cooling_water_temperature_C)
+             if gaps and source != "measured" else None)
+    if worst is not None:
+        worst_d = deliver(worst, dev.initial_temperature_C, process, model, conservative=conservative)
+        worst_F0 = (worst_d.F_min if z_label == "F0" else F_of(worst_d, 121.1, 10.0)) * scale
+        established = bool(log_reductions(worst_F0, micro.botulinum_D_min) >= micro.botulinum_log_reductions_required)
     codes = {f.code for f in flags}
-    fully = established and not (codes & {"critical-factor-out", "record-gap", "scheduled-F-below-target",
-                                          "implausible-input"})
+    fully = established and not (codes & _NOT_FULLY_ESTABLISHED)
 
-    p = _spoilage(delivered.F_min, process)
-    bot = float(log_reductions(delivered.F_min, micro.botulinum_D_min))
-    deviation_codes = codes - {"alternate-process-met"}
+    p, lp = _spoilage(spoil_F, process)
+    p_target, lp_target = _spoilage(target * spoil_ratio, process)
+    p_sched, lp_sched = _spoilage(scheduled_F * scale * spoil_ratio, process)
+    expected = float(expected_nonsterile_containers(p, dev.lot_size_containers))
+    lot_P, lot_lP = (lot_nonsterile_probability(lp, dev.lot_size_containers) if lp is not None
+                     else (0.0, None))
+    deviation_codes = codes - INFORMATION_FLAG_CODES
     low = analysis.lowest_during_hold_C
     facts: dict[str, float | bool | str | None] = {
-        "delivered_F_min": delivered.F_min,
-        "target_F_min": process.target_F_min,
+        "delivered_F_min": headline,
+        "model_F_min": model_F,
+        "relative_F_min": relative_F,
+        "interpolated_F_min": interpolated,
+        "F0_min": F0,
+        "ball_formula_F_min": ball_F,
+        "target_F_min": target,
         "scheduled_F_min": scheduled_F,
-        "F_margin_min": delivered.F_min - process.target_F_min,
+        "F_margin_min": headline - target,
         "botulinum_log_reductions": bot,
         "botulinum_log_reductions_required": micro.botulinum_log_reductions_required,
         "spoilage_probability": p,
-        "target_spoilage_probability": _spoilage(process.target_F_min, process),
-        "expected_nonsterile_containers": float(expected_nonsterile_containers(p, dev.lot_size_containers)),
+        "target_spoilage_probability": p_target,
+        "expected_nonsterile_containers": expected,
+        "lot_nonsterile_probability": lot_P,
         "lot_size_containers": float(dev.lot_size_containers),
         "max_record_gap_min": analysis.max_gap_min,
         "record_gap_limit_min": dev.record_gap_limit_min,
@@ -306,8 +404,10 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         "come_up_excess_min": (max(analysis.come_up_min - process.come_up_time_min, 0.0)
                                if analysis.come_up_min is not None else None),
         "initial_temperature_deficit_C": max(process.minimum_initial_temperature_C - dev.initial_temperature_C, 0.0),
-        "scheduled_F_ratio": scheduled_F / process.target_F_min,
+        "scheduled_F_ratio": scheduled_F / target,
         "degree_minutes_below_C_min": float(sum(i.degree_minutes_below for i in analysis.low_intervals)),
+        "uncertainty_probability_below_target": mc.get("probability_below_target") if mc else None,
+        "uncertainty_F_p05_min": mc.get("F_p05_min") if mc else None,
         "deviation_found": bool(deviation_codes),
         "covered_by_alternate": bool(alternates),
         "lethality_established": established,
@@ -315,7 +415,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         "critical_factor_out": "critical-factor-out" in codes,
         "cycle_running": running,
         "measured_cold_spot": source == "measured",
-        "gap_worst_case_F_min": worst_gap_F,
+        "gap_worst_case_F_min": worst_F0,
         # Text for reasons only (rules cannot compare on it): the factors out, with their limits.
         "critical_factors_out": "; ".join(
             f"{r['name']} {r['value']:g} {r['unit']} ("
@@ -338,10 +438,16 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         retort_id=dev.retort_id,
         model=source,
         conservative=conservative,
-        delivered_F_min=delivered.F_min,
+        delivered_F_min=headline,
+        F_basis=basis,
+        model_F_min=model_F,
+        relative_F_min=relative_F,
+        interpolated_F_min=interpolated,
+        F0_min=F0,
+        ball_formula_F_min=ball_F,
         scheduled_F_min=scheduled_F,
-        target_F_min=process.target_F_min,
-        F_margin_min=delivered.F_min - process.target_F_min,
+        target_F_min=target,
+        F_margin_min=headline - target,
         projected_F_min=projected,
         extension_to_target_min=extension,
         extension_reason=reason,
@@ -350,9 +456,15 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
         reprocess=reprocess,
         uncertainty=mc,
         spoilage_probability=p,
-        target_spoilage_probability=facts["target_spoilage_probability"],
-        scheduled_spoilage_probability=_spoilage(scheduled_F, process),
-        expected_nonsterile_containers=facts["expected_nonsterile_containers"],
+        target_spoilage_probability=p_target,
+        scheduled_spoilage_probability=p_sched,
+        expected_nonsterile_containers=expected,
+        log10_spoilage_probability=lp,
+        log10_target_spoilage_probability=lp_target,
+        log10_scheduled_spoilage_probability=lp_sched,
+        log10_expected_nonsterile_containers=(lp + math.log10(dev.lot_size_containers)) if lp is not None else None,
+        lot_nonsterile_probability=lot_P,
+        log10_lot_nonsterile_probability=lot_lP if lot_lP is not None and math.isfinite(lot_lP) else None,
         botulinum_log_reductions=bot,
         botulinum_log_reductions_required=micro.botulinum_log_reductions_required,
         lethality_established=established,
@@ -382,8 +494,9 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = False, rule_set=No
             retort_C=np.asarray(delivered.retort_C).tolist(),
             temperature_C=np.asarray(delivered.cold_spot_C).tolist(),
             lethal_rate=np.asarray(L).tolist(),
-            cumulative_F_min=np.asarray(delivered.cumulative_F_min).tolist(),
+            cumulative_F_min=(np.asarray(delivered.cumulative_F_min) * scale).tolist(),
             source=source,
+            cumulative_scale=scale,
         ),
         case_sha256=loaded.sha256,
     )

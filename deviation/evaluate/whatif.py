@@ -22,10 +22,18 @@ from deviation.inputs import cycle
 from deviation.inputs import logs as prof
 from deviation.inputs.case import LoadedCase, Process
 from deviation.physics.spoilage import nonsterile_probability
-from deviation.physics.uncertainty import lognormal_factors, sample_F, summarise
+from deviation.physics.heating.heating_curve import bounding_kernels
+from deviation.physics.uncertainty import lognormal_factors, sample_F, sample_F_bounding, summarise
 
 # Longest extension searched for before giving up [min].
 _EXTENSION_LIMIT_MIN = 600.0
+# Age resolution of the bounding superposition for the Monte Carlo samples of the heating-curve
+# model (each sample runs on its own; 300 sampled ages instead of 2500 cut the time about five-fold
+# and, every rounding widening a window, only lower F, which the nominal ratio then cancels).
+_MC_MAX_AGES = 300
+# ... and for the extension's root search: every F it tries is only lower, so the minutes it
+# finds are never too few.
+_SEARCH_MAX_AGES = 600
 
 
 def continue_as_filed(profile: prof.RetortProfile, process: Process, analysis: cycle.CycleAnalysis,
@@ -59,7 +67,7 @@ def continue_as_filed(profile: prof.RetortProfile, process: Process, analysis: c
     parts_T.append([process.cooling_water_temperature_C] * 2)
     ext = prof.RetortProfile(np.concatenate([np.asarray(p, float) for p in parts_t]),
                              np.concatenate([np.asarray(p, float) for p in parts_T]),
-                             profile.source + " + rest as filed", None)
+                             profile.source + " + rest as filed", None, recorded=profile.recorded)
     return ext, hold_end
 
 
@@ -71,43 +79,50 @@ def insert_hold(profile: prof.RetortProfile, at_min: float, extra_min: float, PT
     new_t = np.concatenate([t[before], [at_min, at_min + extra_min], t[~before] + extra_min])
     new_T = np.concatenate([T[before], [max(T_at, PT), PT], T[~before]])
     keep = np.concatenate([[True], np.diff(new_t) > 0])
-    return prof.RetortProfile(new_t[keep], new_T[keep], profile.source + " + extension", None)
+    return prof.RetortProfile(new_t[keep], new_T[keep], profile.source + " + extension", None,
+                              recorded=profile.recorded)
 
 
-def gap_worst_case_F(profile: prof.RetortProfile, analysis: cycle.CycleAnalysis, limit: float,
-                      loaded: LoadedCase, model: ColdSpotModel, conservative: bool) -> float | None:
-    """F when every over-limit gap inside the hold is read as no heat at all (cooling water)."""
+def gap_worst_profile(profile: prof.RetortProfile, analysis: cycle.CycleAnalysis, limit_min: float,
+                      cooling_water_C: float) -> prof.RetortProfile | None:
+    """The record with every gap over the limit inside the hold read as no heat at all.
+
+    A gap between recorder readings longer than the limit hides what the retort did; the
+    process authority credits no lethality across it (FDA, Guide to Inspections of Low Acid
+    Canned Food Manufacturers, Part 1: incomplete records). The retort is taken at the cooling
+    water temperature through each such gap. Returns None when there is no such gap.
+    """
     t, T = profile.time_min, profile.temperature_C
     if analysis.hold_start_min is None:
         return None
-    gaps = np.flatnonzero(np.diff(t) > limit)
+    gaps = np.flatnonzero(np.diff(t) > limit_min)
     hold_end = analysis.hold_end_min if analysis.hold_end_min is not None else t[-1]
     gaps = [i for i in gaps if t[i + 1] > analysis.hold_start_min and t[i] < hold_end]
     if not gaps:
         return None
-    cold_C = loaded.case.process.cooling_water_temperature_C
     new_t, new_T, last = [], [], 0
     for i in gaps:
         new_t += [t[last:i + 1], [t[i] + 1e-3, t[i + 1] - 1e-3]]
-        new_T += [T[last:i + 1], [cold_C, cold_C]]
+        new_T += [T[last:i + 1], [cooling_water_C, cooling_water_C]]
         last = i + 1
     new_t.append(t[last:]); new_T.append(T[last:])
-    worst = prof.RetortProfile(np.concatenate(new_t), np.concatenate(new_T), profile.source, None)
-    d = deliver(worst, loaded.case.deviation.initial_temperature_C, loaded.case.process, model,
-                conservative=conservative, cooling_start_min=analysis.hold_end_min)
-    return d.F_min
+    return prof.RetortProfile(np.concatenate(new_t), np.concatenate(new_T),
+                              profile.source + " (no heat across gaps)", None, recorded=profile.recorded)
 
 
 def extension_to_target(loaded: LoadedCase, profile: prof.RetortProfile, analysis: cycle.CycleAnalysis,
-               model: ColdSpotModel, delivered: Delivered, conservative: bool,
-               source: str, running: bool) -> tuple[float | None, str | None]:
+                        model: ColdSpotModel, delivered: Delivered, conservative: bool,
+                        source: str, running: bool, *, target_model_F_min: float,
+                        uncredited_min=()) -> tuple[float | None, str | None]:
     """Least extra minutes at process temperature, added before cooling, that reach the target F.
 
-    Root finding (Brent's method) on F(extra) - target; F grows with extra time at process
-    temperature, so the root is unique.
+    ``target_model_F_min`` is the model F that makes the headline F reach the filed target
+    (the target itself, or more when the headline is the relative F of a model that
+    over-predicts the filed process). Root finding (Brent's method) on F(extra) - target; F
+    grows with extra time at process temperature, so the root is unique.
     """
     process, dev = loaded.case.process, loaded.case.deviation
-    target = process.target_F_min
+    target = target_model_F_min
     if source == "measured":
         return None, "the cold spot is measured, not predicted: no model to extend"
     if analysis.hold_start_min is None and not running:
@@ -115,14 +130,16 @@ def extension_to_target(loaded: LoadedCase, profile: prof.RetortProfile, analysi
 
     def F_with(extra: float) -> float:
         if running:
-            ext, cool_at = continue_as_filed(profile, process, analysis, model, extra_hold_min=extra)
+            ext, _ = continue_as_filed(profile, process, analysis, model, extra_hold_min=extra)
         else:
             at = analysis.hold_end_min if analysis.hold_end_min is not None else float(profile.time_min[-1])
-            ext, cool_at = insert_hold(profile, at, extra, process.process_temperature_C), at + extra
-            if extra == 0.0:
-                ext = profile
+            ext = insert_hold(profile, at, extra, process.process_temperature_C) if extra else profile
+        if extra and not running:  # an inserted hold moves every later gap along with the record
+            later = [(a + extra, b + extra) if a >= at else (a, b) for a, b in uncredited_min]
+        else:
+            later = uncredited_min
         return deliver(ext, dev.initial_temperature_C, process, model, conservative=conservative,
-                       cooling_start_min=cool_at).F_min - target
+                       uncredited_min=later, max_ages=_SEARCH_MAX_AGES).F_min - target
 
     # With nothing added, a finished cycle's F is the delivered F already computed.
     base = F_with(0.0) if running else delivered.F_min - target
@@ -138,10 +155,14 @@ def extension_to_target(loaded: LoadedCase, profile: prof.RetortProfile, analysi
     return math.ceil(root * 10.0 - 1e-9) / 10.0, None
 
 
-def monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: cycle.CycleAnalysis,
-                 model: ColdSpotModel, spec, conservative: bool, source: str,
-                 delivered_F: float) -> dict[str, Any]:
-    """Monte Carlo over fh (or diffusivity), jh, initial temperature and spores per container."""
+def monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, model: ColdSpotModel, spec,
+                conservative: bool, source: str, delivered_F: float, *, F_scale: float = 1.0,
+                spoilage: tuple[float, float] | None = None) -> dict[str, Any]:
+    """Monte Carlo over fh (or diffusivity), jh, fc, jc, initial temperature and spores.
+
+    ``F_scale`` is the headline's relative correction (1, or target / scheduled F when the model
+    over-predicts the filed process), applied to every sample as to the headline.
+    """
     process, dev = loaded.case.process, loaded.case.deviation
     micro = process.microbiology
     n = spec.samples
@@ -153,15 +174,33 @@ def monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: cycle
     else:
         fh_factor = lognormal_factors(rng, spec.fh_relative_sd, n)
         jh_factor = lognormal_factors(rng, spec.jh_relative_sd, n)
+        fc_factor = lognormal_factors(rng, spec.fc_relative_sd, n)
+        jc_factor = lognormal_factors(rng, spec.jc_relative_sd, n)
         initial = dev.initial_temperature_C + spec.initial_temperature_sd_C * rng.standard_normal(n)
-        t0, grid, retort, start = model_grid(profile, conservative, analysis.hold_end_min)
+        t0, grid, retort = model_grid(profile, conservative, model)
         hp = process.heat_penetration
         if model.name == "heating-curve":
-            fh = hp.fh_min * fh_factor
-            jh = hp.jh * jh_factor
+            fh, jh = hp.fh_min * fh_factor, hp.jh * jh_factor
+            fc = hp.fc_min * fc_factor if hp.fc_min is not None else None
+            jc = (hp.jc if hp.jc is not None else 1.0) * jc_factor if hp.fc_min is not None else None
+            # The bounding superposition runs sample by sample, at a coarser age resolution.
 
-            def step(t2, rows):
-                return np.minimum(1.0, jh[rows, None] * 10.0 ** (-t2 / fh[rows, None]))
+            def kernels(i):
+                return bounding_kernels(fh[i], jh[i], None if fc is None else fc[i],
+                                        None if jc is None else jc[i])
+
+            cons = conservative and profile.recorded
+            F = sample_F_bounding(grid, retort, initial, kernels,
+                                  reference_temperature_C=process.reference_temperature_C, z_C=process.z_C,
+                                  conservative=cons, max_ages=_MC_MAX_AGES)
+            # Centre the spread on the model's own figure: the nominal parameters on this grid
+            # against the model's F on the full grid.
+            nominal = sample_F_bounding(grid, retort, np.array([dev.initial_temperature_C]),
+                                        lambda i: bounding_kernels(hp.fh_min, hp.jh, hp.fc_min, hp.jc),
+                                        reference_temperature_C=process.reference_temperature_C,
+                                        z_C=process.z_C, conservative=cons, max_ages=_MC_MAX_AGES)[0]
+            if nominal > 0.0:
+                F = F * (delivered_F / F_scale) / nominal
         else:
             # Conduction: the step response depends on alpha*t only (at a fixed Biot number), and
             # fh is proportional to 1/alpha, so a sample with fh scaled by f has S(t / f).
@@ -175,14 +214,17 @@ def monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, analysis: cycle
 
             def step(t2, rows):
                 return np.interp(t2 * scale[rows, None], t_tab, S_tab)
-        cooling = model.cooling if start is not None else None
-        F = sample_F(grid, retort, initial, step, reference_temperature_C=process.reference_temperature_C,
-                     z_C=process.z_C, conservative=conservative, cooling_step=cooling,
-                     cooling_start_min=start if cooling is not None else None)
+
+            F = sample_F(grid, retort, initial, step, reference_temperature_C=process.reference_temperature_C,
+                         z_C=process.z_C, conservative=conservative and profile.recorded)
+        F = F_scale * F
     spores = micro.spores_per_container * 10.0 ** (spec.spores_log10_sd * rng.standard_normal(n))
-    p = nonsterile_probability(F, micro.spoilage_D_min, spores)
+    # Spoilage at the organism's own Tref and z: F scaled as the headline's spoilage F is.
+    ratio = spoilage[1] if spoilage else 1.0
+    p = nonsterile_probability(F * ratio, micro.spoilage_D_min, spores)
     out.update(summarise(F, np.asarray(p), target_F_min=process.target_F_min,
-                         botulinum_D_min=micro.botulinum_D_min))
+                         botulinum_D_min=micro.botulinum_D_min,
+                         F0_ratio=spoilage[0] if spoilage else 1.0))
     return out
 
 
@@ -205,7 +247,7 @@ def reprocess_as_filed(loaded: LoadedCase, model: ColdSpotModel, delivered_F: fl
         basis = "the field left by the finite-difference model at the end of the record (coldest node shown)"
     elif start_C is None:
         # From the filed minimum initial temperature a reprocess as filed is the filed cycle.
-        F = scheduled_F_min(process, conservative=conservative)
+        F = scheduled_F_min(process)
         return {"reprocess_F_min": F, "total_F_with_reprocess_min": delivered_F + F,
                 "reprocess_from_temperature_C": process.minimum_initial_temperature_C,
                 "reprocess_from": "the filed minimum initial temperature"}
@@ -213,7 +255,6 @@ def reprocess_as_filed(loaded: LoadedCase, model: ColdSpotModel, delivered_F: fl
     profile = filed_profile(process, start_C=start_C if come_up_start is None else come_up_start,
                              come_up_min=process.come_up_time_min, hold_min=process.process_time_min,
                              cooling_min=cooling_time_min(process, model))
-    F = deliver(profile, initial, process, model, conservative=conservative,
-                cooling_start_min=process.come_up_time_min + process.process_time_min).F_min
+    F = deliver(profile, initial, process, model, conservative=conservative).F_min
     return {"reprocess_F_min": F, "total_F_with_reprocess_min": delivered_F + F,
             "reprocess_from_temperature_C": start_C, "reprocess_from": basis}

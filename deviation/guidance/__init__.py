@@ -47,13 +47,21 @@ from deviation.guidance.explain import (
     evaluate_guidance,
     explain,
 )
-from deviation.guidance.rules import Rule, RuleSet, check_rule_file, default_rules_path, load_rule_set
+from deviation.guidance.rules import (
+    Rule,
+    RuleSet,
+    Settings,
+    check_rule_file,
+    default_rules_path,
+    load_rule_set,
+)
 from deviation.guidance.vocabulary import (
     BOOLEAN_METRICS,
     DEVIATION_FLAG_CODES,
     DISPOSITION_SUMMARY,
     DISPOSITIONS,
     FLAG_CODES,
+    INFORMATION_FLAG_CODES,
     NUMERIC_METRICS,
     OPERATORS,
     STANDING_CAUTION,
@@ -62,8 +70,8 @@ from deviation.guidance.vocabulary import (
 )
 
 __all__ = [
-    "BOOLEAN_METRICS", "DEVIATION_FLAG_CODES", "DISPOSITIONS", "DISPOSITION_SUMMARY", "FLAG_CODES",
+    "BOOLEAN_METRICS", "DEVIATION_FLAG_CODES", "DISPOSITIONS", "DISPOSITION_SUMMARY", "FLAG_CODES", "INFORMATION_FLAG_CODES",
     "NUMERIC_METRICS", "OPERATORS", "STANDING_CAUTION", "TEXT_FACTS", "Guidance", "GuidanceReason",
-    "Rule", "RuleExplanation", "RuleSet", "check_rule_file", "default_rules_path",
+    "Rule", "RuleExplanation", "RuleSet", "Settings", "check_rule_file", "default_rules_path",
     "evaluate_guidance", "explain", "load_rule_set", "severity",
 ]

@@ -18,6 +18,7 @@ from pydantic import (
     AfterValidator,
     BaseModel,
     ConfigDict,
+    Field,
     ValidationError,
     field_validator,
 )
@@ -38,7 +39,7 @@ from deviation.guidance.vocabulary import (
     NUMERIC_METRICS,
 )
 
-__all__ = ["Rule", "RuleSet", "check_rule_file", "default_rules_path", "load_rule_set"]
+__all__ = ["Rule", "RuleSet", "Settings", "check_rule_file", "default_rules_path", "load_rule_set"]
 
 _ID_PATTERN = re.compile(r"^[a-z0-9]+(?:-[a-z0-9]+)*$")
 _RULES_DIR_ENV = "DEVIATION_RULES_DIR"
@@ -48,12 +49,18 @@ _DEFAULT_FILE_NAME = "default.toml"
 def default_rules_path() -> Path:
     """Path of the shipped default rule set.
 
-    ``$DEVIATION_RULES_DIR/default.toml`` when that variable is set, else ``rules/default.toml``
-    beside the package (the repository layout).
+    ``$DEVIATION_RULES_DIR/default.toml`` when that variable is set; else the copy installed with
+    the package (``deviation/_data/rules/``, where the wheel maps the repository's ``rules/``);
+    else ``rules/default.toml`` beside the package (a checkout).
     """
     override = os.environ.get(_RULES_DIR_ENV)
     if override:
         return Path(override).expanduser() / _DEFAULT_FILE_NAME
+    from importlib.resources import files
+
+    installed = files("deviation").joinpath("_data", "rules", _DEFAULT_FILE_NAME)
+    if installed.is_file():
+        return Path(str(installed))
     return Path(__file__).resolve().parents[2] / "rules" / _DEFAULT_FILE_NAME
 
 
@@ -157,6 +164,25 @@ class Rule(BaseModel):
 # --------------------------------------------------------------------------------------------
 
 
+class Settings(BaseModel):
+    """Tolerances the evaluation applies before the rules run (``[settings]`` of a rule file).
+
+    A plant or process authority may change them in its own rule file; each is a fraction.
+    """
+
+    model_config = ConfigDict(extra="forbid", strict=True, frozen=True)
+
+    model_vs_filed_tolerance: Annotated[float, Field(gt=0.0, le=1.0)] = 0.15
+    """Largest relative difference between the model's F for the filed cycle and the filed
+    target before the flag ``model-vs-filed`` is raised (either way)."""
+    ball_formula_tolerance: Annotated[float, Field(gt=0.0, le=5.0)] = 0.25
+    """Largest relative difference between the model's filed-cycle F and Ball's formula before
+    the flag ``ball-formula-differs`` is raised."""
+    jh_theory_tolerance: Annotated[float, Field(gt=0.0, le=1.0)] = 0.15
+    """Largest relative difference between a filed jh and the shape's theoretical centre jh
+    (conduction) before the flag ``jh-differs-from-theory`` is raised."""
+
+
 class RuleSet(BaseModel):
     """The merged rules of the default file and the plant's layers.
 
@@ -169,8 +195,11 @@ class RuleSet(BaseModel):
     rule_sources
         For each rule id, the last file that defined or changed it.
     sha256
-        Hash of a canonical JSON of the enabled rules: it changes when any rule's meaning
-        changes and not when only whitespace or comments of a file change.
+        Hash of a canonical JSON of the enabled rules and the settings: it changes when any
+        rule's meaning or a tolerance changes and not when only whitespace or comments of a file
+        change.
+    settings
+        The tolerances (``[settings]``), defaults overridden key by key by later files.
     """
 
     model_config = ConfigDict(frozen=True)
@@ -179,6 +208,7 @@ class RuleSet(BaseModel):
     sources: tuple[str, ...]
     rule_sources: dict[str, str]
     sha256: str
+    settings: Settings = Settings()
 
     def enabled_rules(self) -> list[Rule]:
         """The rules that take part in guidance."""
@@ -192,8 +222,9 @@ class RuleSet(BaseModel):
         raise KeyError(rule_id)
 
 
-def _canonical_sha256(rules: Iterable[Rule]) -> str:
-    payload = [rule.model_dump(mode="json", by_alias=True) for rule in rules if rule.enabled]
+def _canonical_sha256(rules: Iterable[Rule], settings: Settings) -> str:
+    payload = {"rules": [rule.model_dump(mode="json", by_alias=True) for rule in rules if rule.enabled],
+               "settings": settings.model_dump(mode="json")}
     text = json.dumps(payload, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
@@ -330,16 +361,38 @@ def _merge_file(
     raw: dict[str, dict[str, Any]],
     rule_sources: dict[str, str],
     is_base: bool,
+    settings: dict[str, Any] | None = None,
 ) -> None:
-    """Validate one rule file and merge its rules into ``merged`` (by id), or raise RulesError."""
+    """Validate one rule file and merge its rules into ``merged`` (by id) and its ``[settings]``
+    into ``settings`` (by key), or raise RulesError."""
     document = _read_toml(path)
     problems: list[str] = []
     for key in document:
-        if key != "rule":
+        if key not in ("rule", "settings"):
             problems.append(
-                f"{path}, field {key}: unknown key; a rule file holds only [[rule]] tables"
+                f"{path}, field {key}: unknown key; a rule file holds [[rule]] tables and a "
+                "[settings] table"
             )
+    if "settings" in document:
+        given = document["settings"]
+        if not isinstance(given, dict):
+            problems.append(f"{path}, field settings: must be a table, found {_describe(given)}")
+        else:
+            try:
+                Settings.model_validate({**(settings or {}), **given})
+            except ValidationError as error:
+                for item in error.errors(include_url=False):
+                    where = ".".join(str(part) for part in item["loc"])
+                    problems.append(f"{path}, field settings.{where}: "
+                                    f"{_problem_text(item, Settings)}")
+            else:
+                if settings is not None:
+                    settings.update(given)
     entries = document.get("rule")
+    if entries is None and "settings" in document and not is_base:
+        if problems:
+            raise RulesError("\n".join(problems))
+        return
     if entries is None:
         problems.append(f"{path}: no [[rule]] tables found")
         raise RulesError("\n".join(problems))
@@ -413,14 +466,17 @@ def load_rule_set(paths: Sequence[Path | str] = ()) -> RuleSet:
     merged: dict[str, Rule] = {}
     raw: dict[str, dict[str, Any]] = {}
     rule_sources: dict[str, str] = {}
+    settings: dict[str, Any] = {}
     for index, file in enumerate(files):
-        _merge_file(file, merged, raw, rule_sources, is_base=index == 0)
+        _merge_file(file, merged, raw, rule_sources, is_base=index == 0, settings=settings)
     rules = tuple(merged.values())
+    tolerances = Settings.model_validate(settings)
     return RuleSet(
         rules=rules,
         sources=tuple(str(file) for file in files),
         rule_sources=rule_sources,
-        sha256=_canonical_sha256(rules),
+        sha256=_canonical_sha256(rules, tolerances),
+        settings=tolerances,
     )
 
 

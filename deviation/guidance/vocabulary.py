@@ -28,6 +28,14 @@ NUMERIC_METRICS: tuple[str, ...] = (
     "initial_temperature_deficit_C",
     "scheduled_F_ratio",
     "degree_minutes_below_C_min",
+    "model_F_min",
+    "relative_F_min",
+    "interpolated_F_min",
+    "F0_min",
+    "ball_formula_F_min",
+    "lot_nonsterile_probability",
+    "uncertainty_probability_below_target",
+    "uncertainty_F_p05_min",
 )
 """Numeric facts a condition may compare (units in the names)."""
 
@@ -65,12 +73,29 @@ FLAG_CODES: tuple[str, ...] = (
     "scheduled-F-below-target",
     "implausible-input",
     "alternate-process-met",
+    "recorder-above-indicating",
+    "model-vs-filed",
+    "ball-formula-differs",
+    "jh-differs-from-theory",
+    "parameter-not-used",
+    "surface-heat-transfer-assumed",
 )
 """Flag codes the evaluation may raise; a rule naming any other code is a load-time error."""
 
+INFORMATION_FLAG_CODES: frozenset[str] = frozenset({
+    "alternate-process-met",
+    "scheduled-F-below-target",
+    "model-vs-filed",
+    "ball-formula-differs",
+    "jh-differs-from-theory",
+    "parameter-not-used",
+    "surface-heat-transfer-assumed",
+})
+"""Flag codes about the filed process and its model, not about this cycle: they do not make
+``deviation_found`` (the model's own doubts leave the lethality not fully established instead)."""
 
-DEVIATION_FLAG_CODES: frozenset[str] = frozenset(FLAG_CODES) - {"alternate-process-met"}
-"""Flag codes that mean a deviation (``alternate-process-met`` is information only)."""
+DEVIATION_FLAG_CODES: frozenset[str] = frozenset(FLAG_CODES) - INFORMATION_FLAG_CODES
+"""Flag codes that mean a deviation of this cycle."""
 
 
 DISPOSITIONS: tuple[str, ...] = (

@@ -17,6 +17,7 @@ from pathlib import Path
 from typing import Annotated, Any, Literal
 
 from pydantic import (
+    AliasChoices,
     BaseModel,
     ConfigDict,
     Field,
@@ -38,9 +39,10 @@ _TEMPERATURES = (
     "initial_temperature",
     "temperature",
     "reprocess_from_temperature",
+    "spoilage_reference_temperature",
 )
 # Temperature differences (z) convert by 5/9 alone.
-_DIFFERENCES = ("z",)
+_DIFFERENCES = ("z", "spoilage_z")
 
 
 def _accept_fahrenheit(data: Any) -> Any:
@@ -63,7 +65,7 @@ def _accept_fahrenheit(data: Any) -> Any:
 
 
 class _Model(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
 
     @model_validator(mode="before")
     @classmethod
@@ -75,15 +77,45 @@ Positive = Annotated[float, Field(gt=0)]
 TemperatureC = Annotated[float, Field(ge=-50, le=200)]
 
 
-class Microbiology(_Model):
-    """The organisms the filed lethality is set against."""
+# C. botulinum types A and B: D at 121.1 °C (Stumbo 1973, Thermobacteriology in Food Processing).
+BOTULINUM_REFERENCE_D_MIN = 0.21
 
-    spoilage_D_min: Positive = Field(description="D at Tref of the spoilage organism the target is set for [min]")
+
+class Microbiology(_Model):
+    """The organisms the filed lethality is set against, each with its own kinetics.
+
+    The spoilage organism keeps its own D, z and Tref (z and Tref default to the process's own);
+    the botulinum figure is always judged on F0 (Tref 121.1 °C, z 10 °C) with D 0.21 min
+    (Stumbo 1973), unless the case gives another D with its source.
+    """
+
+    spoilage_D_min: Positive = Field(
+        description="D of the spoilage organism the target is set for, at its reference temperature [min]")
+    spoilage_z_C: Positive | None = Field(
+        None, description="z of the spoilage organism [°C difference] (default: the process's z_C)")
+    spoilage_reference_temperature_C: TemperatureC | None = Field(
+        None, description="Reference temperature of the spoilage organism's D [°C] (default: the "
+                          "process's reference_temperature_C)")
     spores_per_container: Positive = Field(description="Initial spoilage spores per container N0 [-]")
-    botulinum_D_min: Positive = Field(description="D at Tref of C. botulinum [min] (0.21 min, Stumbo 1973)")
+    botulinum_D_min: Positive = Field(
+        BOTULINUM_REFERENCE_D_MIN,
+        description="D of C. botulinum at 121.1 °C [min] (0.21 min, Stumbo 1973); another value needs "
+                    "botulinum_D_source")
+    botulinum_D_source: str | None = Field(
+        None, description="Where a botulinum D other than 0.21 min comes from (publication, study)")
     botulinum_log_reductions_required: Positive = Field(
         12.0, description="Required botulinum log reductions (12D principle)"
     )
+
+    @model_validator(mode="after")
+    def _botulinum_source(self) -> Microbiology:
+        if abs(self.botulinum_D_min - BOTULINUM_REFERENCE_D_MIN) > 1e-12 and not (
+                self.botulinum_D_source and self.botulinum_D_source.strip()):
+            raise ValueError(
+                f"botulinum_D_min {self.botulinum_D_min:g} min differs from the reference "
+                f"{BOTULINUM_REFERENCE_D_MIN:g} min (Stumbo 1973): give botulinum_D_source naming "
+                "where the value comes from")
+        return self
 
 
 class Container(_Model):
@@ -120,10 +152,13 @@ class HeatPenetration(_Model):
     fc_min: Positive | None = Field(None, description="Cooling rate factor fc [min]")
     jc: Positive | None = Field(None, description="Cooling lag factor jc [-]")
     thermal_diffusivity_m2_s: Positive | None = Field(None, description="Thermal diffusivity [m²/s]")
-    surface_htc_W_m2K: Positive | None = Field(
-        None, description="Surface heat transfer coefficient (finite-difference model) [W/(m²·K)]")
+    surface_heat_transfer_W_m2K: Positive | None = Field(
+        None, validation_alias=AliasChoices("surface_heat_transfer_W_m2K", "surface_htc_W_m2K"),
+        description="Surface heat transfer coefficient of the retort medium (conduction and "
+                    "finite-difference models; Biot boundary) [W/(m²·K)]; surface_htc_W_m2K is "
+                    "accepted as an older name")
     thermal_conductivity_W_mK: Positive | None = Field(
-        None, description="Product thermal conductivity, with surface_htc_W_m2K [W/(m·K)]")
+        None, description="Product thermal conductivity, with surface_heat_transfer_W_m2K [W/(m·K)]")
 
     @model_validator(mode="after")
     def _parameters(self) -> HeatPenetration:
@@ -132,13 +167,14 @@ class HeatPenetration(_Model):
                 raise ValueError(f"model '{self.model}' needs fh_min or thermal_diffusivity_m2_s")
             if self.fh_min is not None and self.thermal_diffusivity_m2_s is not None:
                 raise ValueError(f"model '{self.model}' takes fh_min or thermal_diffusivity_m2_s, not both")
-        htc, k = self.surface_htc_W_m2K, self.thermal_conductivity_W_mK
+        htc, k = self.surface_heat_transfer_W_m2K, self.thermal_conductivity_W_mK
         if (htc is None) != (k is None):
-            raise ValueError("surface_htc_W_m2K and thermal_conductivity_W_mK go together; give both or neither")
-        if htc is not None and self.model != "finite-difference":
-            raise ValueError(f"surface_htc_W_m2K needs model 'finite-difference' (model '{self.model}' "
-                             "holds the surface at the retort temperature)")
-        elif self.model == "heating-curve":
+            raise ValueError("surface_heat_transfer_W_m2K and thermal_conductivity_W_mK go together; "
+                             "give both or neither")
+        if htc is not None and self.model == "heating-curve":
+            raise ValueError("surface_heat_transfer_W_m2K needs model 'conduction' or 'finite-difference' "
+                             "(the heating-curve model's fh and jh already hold the surface's effect)")
+        if self.model == "heating-curve":
             missing = [k for k in ("fh_min", "jh") if getattr(self, k) is None]
             if missing:
                 raise ValueError(f"model 'heating-curve' needs fh_min and jh; missing {', '.join(missing)}")
@@ -260,6 +296,10 @@ class UncertaintySpec(_Model):
         0.10, description="Relative standard deviation of fh (or of the diffusivity) [-]")
     jh_relative_sd: Annotated[float, Field(ge=0, le=1)] = Field(
         0.10, description="Relative standard deviation of jh (heating-curve model) [-]")
+    fc_relative_sd: Annotated[float, Field(ge=0, le=1)] = Field(
+        0.10, description="Relative standard deviation of fc (heating-curve model, when filed) [-]")
+    jc_relative_sd: Annotated[float, Field(ge=0, le=1)] = Field(
+        0.10, description="Relative standard deviation of jc (heating-curve model, when filed) [-]")
     initial_temperature_sd_C: Annotated[float, Field(ge=0, le=30)] = Field(
         1.0, description="Standard deviation of the initial temperature [°C]")
     spores_log10_sd: Annotated[float, Field(ge=0, le=5)] = Field(

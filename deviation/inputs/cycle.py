@@ -197,7 +197,8 @@ def filed_cycle(
         np.where(index <= n_hold_end, process_temperature_C, cooling_water_temperature_C),
     )
     return RetortProfile(
-        time_min=time_min, temperature_C=temperature_C, source="filed cycle", sha256=None
+        time_min=time_min, temperature_C=temperature_C, source="filed cycle", sha256=None,
+        recorded=False,
     )
 
 
@@ -279,8 +280,11 @@ def apply_temperature_low(
     source = profile.source
     if not source.endswith(" + events"):
         source = f"{source} + events"
+    # The indicating device's readings are applied before events (the pipeline evaluates on
+    # the lower of the two instruments first), so they are not carried past this point.
     return RetortProfile(
-        time_min=time_min, temperature_C=temp_C, source=source, sha256=profile.sha256
+        time_min=time_min, temperature_C=temp_C, source=source, sha256=profile.sha256,
+        recorded=profile.recorded,
     )
 
 

@@ -80,6 +80,12 @@ class RetortProfile:
         File path, or ``"filed cycle"`` / ``"filed cycle + events"``
     sha256 : str or None
         SHA-256 hex digest of the file bytes when read from a file
+    indicating_C : numpy.ndarray or None
+        Readings of the temperature-indicating device beside the recorder's, NaN where a row has
+        none [°C]; ``None`` when the log has no such column
+    recorded : bool
+        True for readings taken from a recorder (a log); False for a history built from the
+        filed process, which is exact between its points (no "lower reading between samples")
 
     Notes
     -----
@@ -91,6 +97,8 @@ class RetortProfile:
     temperature_C: np.ndarray
     source: str
     sha256: str | None = None
+    indicating_C: np.ndarray | None = None
+    recorded: bool = True
 
     def __post_init__(self) -> None:
         time_min = np.array(self.time_min, dtype=float)
@@ -110,6 +118,12 @@ class RetortProfile:
         temperature_C.setflags(write=False)
         object.__setattr__(self, "time_min", time_min)
         object.__setattr__(self, "temperature_C", temperature_C)
+        if self.indicating_C is not None:
+            indicating = np.array(self.indicating_C, dtype=float)
+            if indicating.shape != time_min.shape:
+                raise ValueError("RetortProfile: indicating_C must have the shape of time_min")
+            indicating.setflags(write=False)
+            object.__setattr__(self, "indicating_C", indicating)
 
     def __eq__(self, other: object) -> bool:
         if not isinstance(other, RetortProfile):
@@ -119,6 +133,10 @@ class RetortProfile:
             and self.sha256 == other.sha256
             and np.array_equal(self.time_min, other.time_min)
             and np.array_equal(self.temperature_C, other.temperature_C)
+            and self.recorded == other.recorded
+            and (self.indicating_C is None) == (other.indicating_C is None)
+            and (self.indicating_C is None
+                 or np.array_equal(self.indicating_C, other.indicating_C, equal_nan=True))
         )
 
     __hash__ = None  # arrays are not hashable; equality is by value
@@ -222,6 +240,20 @@ def _header_columns(
     time_name = "time_min" if "time_min" in found else "time"
     temperature_name = "temperature_C" if "temperature_C" in found else "temperature_F"
     return time_name, found[time_name], temperature_name, found[temperature_name]
+
+
+def _indicating_column(header: list[str], line: int, source: str) -> tuple[str, int] | None:
+    """The optional column of the temperature-indicating device: (name, index) or None."""
+    names = [name.strip().lower() for name in header]
+    found = [(n, i) for i, n in enumerate(names) if n in ("indicating_temperature_c", "indicating_temperature_f")]
+    if len(found) > 1:
+        raise RecordError(
+            f"line {line}: more than one indicating_temperature column in the header; expected "
+            "indicating_temperature_C or indicating_temperature_F once", source=source)
+    if not found:
+        return None
+    name, index = found[0]
+    return ("indicating_temperature_C" if name.endswith("_c") else "indicating_temperature_F"), index
 
 
 def _number(text: str, line: int, column: str, expected: str, source: str) -> float:
@@ -396,8 +428,10 @@ def parse_log_text(
             source=source,
         )
 
+    indicating = _indicating_column(header, header_line, source) if kind == "retort" else None
     needed = max(time_index, temperature_index) + 1
     unit = "°C" if temperature_name == "temperature_C" else "°F"
+    indicating_values: list[float] = []
     expected_temperature = f"a temperature [{unit}]"
     line_numbers: list[int] = []
     time_texts: list[str] = []
@@ -419,6 +453,13 @@ def parse_log_text(
         temperatures.append(
             _number(fields[temperature_index], line, temperature_name, expected_temperature, source)
         )
+        if indicating is not None:
+            # Sparse: the indicating device is read at intervals, so an empty cell is no reading.
+            cell = fields[indicating[1]].strip() if indicating[1] < len(fields) else ""
+            indicating_values.append(np.nan if not cell else _number(
+                cell, line, indicating[0],
+                f"a temperature [{'°C' if indicating[0].endswith('_C') else '°F'}] or an empty cell",
+                source))
         line_numbers.append(line)
         time_texts.append(time_text)
 
@@ -428,9 +469,32 @@ def parse_log_text(
     values = np.array(temperatures)
     # Absurd values overflow to inf in the conversions; they are reported as impossible.
     with np.errstate(over="ignore", invalid="ignore"):
-        return _checked_profile(
+        profile = _checked_profile(
             values, temperature_name, unit, line_numbers, time_min, what, source, sha256
         )
+        if indicating is None:
+            return profile
+        return _with_indicating(profile, np.array(indicating_values), indicating[0], line_numbers,
+                                what, source)
+
+
+def _with_indicating(profile: RetortProfile, values: np.ndarray, column: str,
+                     line_numbers: list[int], what: str, source: str) -> RetortProfile:
+    """Check the indicating device's readings (unit, plausibility) and add them to the profile."""
+    have = np.isfinite(values)
+    if not np.any(have):
+        return profile
+    readings = values[have]
+    lines = [n for n, h in zip(line_numbers, have) if h]
+    unit = "°C" if column.endswith("_C") else "°F"
+    # The same unit and plausibility checks as the recorder column, on the readings present.
+    checked = _checked_profile(readings, column.replace("indicating_", ""), unit, lines,
+                               np.arange(readings.size, dtype=float), what, source, None)
+    indicating_C = np.full(values.shape, np.nan)
+    indicating_C[have] = checked.temperature_C
+    from dataclasses import replace
+
+    return replace(profile, indicating_C=indicating_C)
 
 
 def _checked_profile(values, temperature_name, unit, line_numbers, time_min, what, source, sha256):

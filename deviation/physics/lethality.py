@@ -88,7 +88,8 @@ def lethal_rate(
 
 
 def general_method(
-    time_min, temperature_C, reference_temperature_C, z_C, *, conservative=False
+    time_min, temperature_C, reference_temperature_C, z_C, *, conservative=False,
+    uncredited_min=(),
 ) -> tuple[float, np.ndarray]:
     """Sterilizing value of a temperature history by the General Method.
 
@@ -110,6 +111,10 @@ def general_method(
         z value [°C]; 10 °C for F0.
     conservative : bool, optional
         Credit each interval with the lower of its two lethal rates instead of their mean.
+    uncredited_min : sequence of (start, end), optional
+        Time windows [min] in which no lethality is credited (a gap in the record longer than
+        allowed: what the retort did there is not known); an interval partly inside a window is
+        credited for the part outside it only.
 
     Returns
     -------
@@ -160,6 +165,11 @@ def general_method(
         per_interval = dt * np.minimum(rate[:-1], rate[1:])
     else:
         per_interval = 0.5 * dt * (rate[:-1] + rate[1:])
+    for start, end in uncredited_min:
+        overlap = np.clip(np.minimum(t[1:], end) - np.maximum(t[:-1], start), 0.0, None)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            kept = np.where(dt > 0.0, 1.0 - np.minimum(overlap / dt, 1.0), 1.0)
+        per_interval = per_interval * kept
     cumulative = np.empty_like(t)
     cumulative[0] = 0.0
     np.cumsum(per_interval, out=cumulative[1:])

@@ -22,6 +22,8 @@ __all__ = [
     "SpoilageInputError",
     "survivors_per_container",
     "nonsterile_probability",
+    "log10_nonsterile_probability",
+    "lot_nonsterile_probability",
     "expected_nonsterile_containers",
     "log_reductions",
     "F_for_log_reductions",
@@ -119,6 +121,76 @@ def nonsterile_probability(F_min, D_min, spores_per_container):
     # above 10^3 survivors exp(-N) is 0 in double precision: skip forming N (no overflow)
     n = np.power(10.0, np.minimum(log10_n, 3.0))
     return _out(-np.expm1(-n))
+
+
+def log10_nonsterile_probability(F_min, D_min, spores_per_container):
+    """log10 of the probability that a container holds at least one survivor (no underflow).
+
+    Method: as :func:`nonsterile_probability`, ``p = 1 - exp(-N)``, taken in log space:
+    ``log10 p = log10(-expm1(-N))``, which for small ``N`` is ``log10 N = log10 N0 - F/D``
+    to within ``N/2`` relative, so a probability below 1e-308 keeps its exponent instead of
+    becoming 0 (Stumbo 1973 [1]).
+
+    Parameters
+    ----------
+    F_min : float or array_like
+        Delivered sterilizing value [min].
+    D_min : float or array_like
+        Decimal reduction time at the reference temperature [min], > 0.
+    spores_per_container : float or array_like
+        Initial load N0 [organisms per container], >= 0 (0 gives ``-inf``).
+
+    Returns
+    -------
+    float or numpy.ndarray
+        log10 of the probability [-], <= 0.
+
+    References
+    ----------
+    .. [1] C. R. Stumbo, *Thermobacteriology in Food Processing*, 2nd ed., 1973.
+    """
+    log10_n = np.asarray(_log10_survivors(F_min, D_min, spores_per_container), dtype=float)
+    # Where N is representable use the exact form; below 1e-300, p = N (1 - N/2 + ...) exactly
+    # enough that log10 p = log10 N.
+    n = np.power(10.0, np.clip(log10_n, -300.0, 3.0))
+    with np.errstate(divide="ignore"):
+        exact = np.log10(-np.expm1(-n))
+    return _out(np.where(log10_n < -300.0, log10_n, exact))
+
+
+def lot_nonsterile_probability(log10_probability, lot_size_containers):
+    """Probability that a lot holds at least one nonsterile container, and its log10.
+
+    Method: containers independent, ``P = 1 - (1 - p)^n``, formed as
+    ``-expm1(n · log1p(-p))`` from ``log10 p`` so that neither small nor large values lose
+    precision.
+
+    Parameters
+    ----------
+    log10_probability : float
+        log10 of the per-container probability [-] (from :func:`log10_nonsterile_probability`).
+    lot_size_containers : float
+        Containers in the lot [-], >= 0.
+
+    Returns
+    -------
+    tuple of float
+        ``(P, log10 P)`` [-].
+    """
+    lp = float(log10_probability)
+    n = float(_array("lot_size_containers", lot_size_containers, minimum=0.0))
+    if not lp <= 0.0:
+        raise SpoilageInputError(f"log10_probability = {lp!r}; expected a number <= 0")
+    if n == 0.0 or lp == -np.inf:
+        return 0.0, -np.inf
+    if lp < -300.0:  # P = n p (1 - ...) : no term of the expansion is representable but the first
+        log10_P = lp + np.log10(n)
+        return float(10.0 ** log10_P) if log10_P > -300.0 else 0.0, float(log10_P)
+    p = 10.0 ** lp
+    P = float(-np.expm1(n * np.log1p(-p))) if p < 1.0 else 1.0
+    if P > 0.0:
+        return P, float(np.log10(P))
+    return 0.0, float(lp + np.log10(n))
 
 
 def expected_nonsterile_containers(probability, lot_size_containers):

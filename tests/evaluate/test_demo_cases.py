@@ -20,13 +20,16 @@ EXPECTED = {
     # case: (disposition, flag codes that must be raised, rule that must fire)
     "chili_no_deviation": ("no-deviation", set(), None),
     "chili_temperature_drop": ("evaluate", {"temperature-low"}, "retort-temperature-drop"),
-    "peas_steam_loss": ("evaluate", {"temperature-low"}, "retort-temperature-drop"),
+    # The bounding heating-curve model credits no heat after the steam loss that the product
+    # could not have had: F0 below the filed target (issue 12).
+    "peas_steam_loss": ("reprocess", {"temperature-low"}, "below-filed-target"),
     "peas_short_hold": ("reprocess", {"short-hold"}, "below-filed-target"),
     "chili_low_initial_temperature": ("evaluate", {"low-initial-temperature"}, "low-initial-temperature"),
     "tray_long_come_up": ("evaluate", {"long-come-up"}, "long-come-up"),
     "chili_record_gap": ("evaluate", {"record-gap"}, "record-gap"),
     "peas_fill_weight": ("evaluate", {"critical-factor-out"}, "critical-factor-out"),
-    "tray_measured_cold_spot": ("evaluate", {"temperature-low"}, "deviation-hold-and-evaluate"),
+    # The measured cold spot read at the lower reading between samples: below the filed target.
+    "tray_measured_cold_spot": ("reprocess", {"temperature-low"}, "below-filed-target"),
     "chili_alternate_process": ("covered-by-alternate", {"alternate-process-met"}, "alternate-process-met"),
     "tray_steam_failure": ("reprocess-or-destroy", {"short-hold"}, "botulinum-12d-not-met"),
     "chili_cycle_running": ("evaluate", {"record-ends-before-cooling"}, "cycle-still-running"),

@@ -25,6 +25,11 @@ CONTRACT_KEYS = {
     "delivered_F_min", "scheduled_F_min", "target_F_min", "spoilage_probability",
     "target_spoilage_probability", "expected_nonsterile_containers", "botulinum_log_reductions",
     "flags", "cold_spot", "guidance", "projected_F_min", "extension_to_target_min",
+    # issue 12: the headline's parts, F0, Ball's formula, log10 twins, the lot's probability
+    "F_basis", "model_F_min", "relative_F_min", "interpolated_F_min", "F0_min", "ball_formula_F_min",
+    "log10_spoilage_probability", "log10_target_spoilage_probability",
+    "log10_scheduled_spoilage_probability", "log10_expected_nonsterile_containers",
+    "lot_nonsterile_probability", "log10_lot_nonsterile_probability",
 }
 
 
@@ -47,17 +52,23 @@ def test_json_contract(drop_case):
     assert n == len(data["cold_spot"]["temperature_C"]) == len(data["cold_spot"]["cumulative_F_min"])
     assert data["cold_spot"]["cumulative_F_min"][-1] == pytest.approx(data["delivered_F_min"])
     assert all({"code", "message"} <= set(f) for f in data["flags"])
-    assert [f["code"] for f in data["flags"]] == ["temperature-low"]
+    from deviation.guidance import INFORMATION_FLAG_CODES
+
+    assert [f["code"] for f in data["flags"] if f["code"] not in INFORMATION_FLAG_CODES] == ["temperature-low"]
     assert data["guidance"]["disposition"] == "evaluate"
     assert "process authority" in data["caution"]
 
 
 def test_delivered_F_is_the_general_method_of_the_cold_spot(drop_case):
-    ev = evaluate_case(drop_case, rule_set=False)
+    ev = evaluate_case(drop_case, rule_set=False, conservative=False)
     cs = ev.cold_spot
     # Recompute independently from the returned cold-spot curve (trapezoidal General Method).
     L = 10.0 ** ((np.array(cs.temperature_C) - 121.1) / 10.0)
-    assert np.trapezoid(L, cs.time_min) == pytest.approx(ev.delivered_F_min, rel=1e-9)
+    assert np.trapezoid(L, cs.time_min) == pytest.approx(ev.model_F_min, rel=1e-9)
+    # The headline is the relative F of a model that over-predicts the filed process.
+    assert ev.scheduled_F_min > ev.target_F_min
+    assert ev.delivered_F_min == pytest.approx(ev.model_F_min * ev.target_F_min / ev.scheduled_F_min, rel=1e-12)
+    assert cs.cumulative_F_min[-1] == pytest.approx(ev.delivered_F_min, rel=1e-12)
 
 
 def test_spoilage_figures_follow_from_F(drop_case):
@@ -65,7 +76,9 @@ def test_spoilage_figures_follow_from_F(drop_case):
     m = drop_case.case.process.microbiology
     N = m.spores_per_container * 10.0 ** (-ev.delivered_F_min / m.spoilage_D_min)
     assert ev.spoilage_probability == pytest.approx(-math.expm1(-N), rel=1e-12)
-    assert ev.target_spoilage_probability == pytest.approx(-math.expm1(-m.spores_per_container * 10 ** -6.0))
+    assert ev.target_spoilage_probability == pytest.approx(
+        -math.expm1(-m.spores_per_container * 10 ** (-ev.target_F_min / m.spoilage_D_min)))
+    assert ev.log10_spoilage_probability == pytest.approx(math.log10(ev.spoilage_probability), rel=1e-12)
     assert ev.expected_nonsterile_containers == pytest.approx(ev.spoilage_probability * 4800)
     assert ev.botulinum_log_reductions == pytest.approx(ev.delivered_F_min / 0.21)
 
@@ -108,8 +121,13 @@ def test_measured_cold_spot_is_integrated_as_is():
     t = np.array([float(r[0]) for r in rows])
     T = np.array([float(r[1]) for r in rows])
     F, _ = general_method(t, T, 121.1, 10.0)
+    F_low, _ = general_method(t, T, 121.1, 10.0, conservative=True)
     assert ev.model == "measured"
-    assert ev.delivered_F_min == pytest.approx(F)
+    # The headline reads the measured log at the lower reading between samples; the
+    # interpolated (trapezoid) figure stands beside it.
+    assert ev.delivered_F_min == pytest.approx(F_low)
+    assert ev.interpolated_F_min == pytest.approx(F)
+    assert ev.delivered_F_min < ev.interpolated_F_min
     assert ev.extension_to_target_min is None and "measured" in ev.extension_reason
 
 
@@ -125,9 +143,14 @@ def test_events_without_log_match_an_equivalent_log(drop_case):
     cs = ev_events.cold_spot
     t = np.array(cs.time_min)
     T = np.array(cs.retort_C)
-    ev_log = evaluate_case(with_log(event_case, t, T), rule_set=False)
+    # The built profile is exact between its points; the same points as a recorded log, read
+    # with straight lines, give the same F (read at the lower reading they give less).
+    ev_log = evaluate_case(with_log(event_case, t, T), rule_set=False, conservative=False)
     assert ev_events.delivered_F_min == pytest.approx(ev_log.delivered_F_min, rel=2e-3)
-    assert [f.code for f in ev_events.flags] == ["temperature-low"]
+    assert evaluate_case(with_log(event_case, t, T), rule_set=False).delivered_F_min <= ev_log.delivered_F_min
+    from deviation.guidance import INFORMATION_FLAG_CODES
+
+    assert [f.code for f in ev_events.flags if f.code not in INFORMATION_FLAG_CODES] == ["temperature-low"]
 
 
 def test_conservative_is_never_above_default(drop_case):

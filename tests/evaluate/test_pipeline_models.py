@@ -60,12 +60,13 @@ def test_fh_given_with_a_biot_boundary_is_the_fh_the_solver_shows():
 
 
 def test_heating_curve_cooling_parameters_matter():
-    """fc/jc change only the cooling phase: a slower cooling (larger fc) credits more lethality."""
+    """fc/jc change only how the cold spot answers falls of the retort (the product here starts
+    hotter than the retort, so from the first step on): a slower cooling (larger fc) never gives
+    a cooler cold spot and credits more lethality."""
     base = load_case(DEMO / "peas_steam_loss.toml").case.process.heat_penetration.model_dump(exclude_none=True)
     slow = evaluate_case(_with_heat_penetration("peas_steam_loss", {**base, "fc_min": 20.0}), rule_set=False,
                          what_if=False)
     fast = evaluate_case(_with_heat_penetration("peas_steam_loss", {**base, "fc_min": 5.0}), rule_set=False,
                          what_if=False)
     assert slow.delivered_F_min > fast.delivered_F_min
-    held = np.array(slow.cold_spot.time_min) < slow.cycle.hold_end_min
-    assert np.allclose(np.array(slow.cold_spot.temperature_C)[held], np.array(fast.cold_spot.temperature_C)[held])
+    assert np.all(np.array(slow.cold_spot.temperature_C) >= np.array(fast.cold_spot.temperature_C) - 1e-9)

@@ -684,7 +684,7 @@ BAD_RULE_MESSAGES = {
     "rule_not_array": "{f}, field rule: must be an array of tables written [[rule]], found a table",
     "no_rules": "{f}: no [[rule]] tables found",
     "unknown_top_level_key": (
-        "{f}, field version: unknown key; a rule file holds only [[rule]] tables"
+        "{f}, field version: unknown key; a rule file holds [[rule]] tables and a [settings] table"
     ),
     "not_utf8": "{f}: not UTF-8 text (byte 32); save the rule file as UTF-8",
     "two_problems": (

@@ -28,8 +28,9 @@ EXPECTED_MESSAGES = {
     'text_for_number.toml': "deviation.lot_size_containers: Input should be a valid integer, unable to parse string as an integer (found 'many')",
     'unknown_event_kind.toml': "deviation.events[0].kind: Input should be 'temperature-low', 'hold-time' or 'come-up-time' (found 'steam-gone')",
     'unknown_key.toml': 'process.comeup_minutes: unknown key (not part of the case contract)',
-    'htc_without_conductivity.toml': "process.heat_penetration: surface_htc_W_m2K and thermal_conductivity_W_mK go together; give both or neither",
-    'htc_with_analytical_model.toml': "process.heat_penetration: surface_htc_W_m2K needs model 'finite-difference' (model 'conduction' holds the surface at the retort temperature)",
+    'htc_without_conductivity.toml': "process.heat_penetration: surface_heat_transfer_W_m2K and thermal_conductivity_W_mK go together; give both or neither",
+    'htc_with_heating_curve.toml': "process.heat_penetration: surface_heat_transfer_W_m2K needs model 'conduction' or 'finite-difference' (the heating-curve model's fh and jh already hold the surface's effect)",
+    'botulinum_d_without_source.toml': "process.microbiology: botulinum_D_min 0.18 min differs from the reference 0.21 min (Stumbo 1973): give botulinum_D_source naming where the value comes from",
     'zero_lot.toml': 'deviation.lot_size_containers: Input should be greater than or equal to 1 (found 0)',
 }
 
