@@ -41,17 +41,31 @@ def flags_table(ev: Evaluation) -> Table | Text:
 
 
 def figures_table(ev: Evaluation) -> Table:
-    t = Table(title=f"Lethality at the cold spot ({ev.model}{', conservative' if ev.conservative else ''})")
+    t = Table(title=f"Lethality at the cold spot ({ev.model}"
+                    f"{', lower reading between samples' if ev.conservative else ', interpolated'})")
     t.add_column("quantity")
     t.add_column("value", justify="right")
     t.add_column("note")
     margin = ev.F_margin_min
-    t.add_row("delivered F0", f"{ev.delivered_F_min:.2f} min",
-              ("meets" if margin >= 0 else "BELOW") + f" target by {abs(margin):.2f} min")
-    t.add_row("filed target F0", f"{ev.target_F_min:.2f} min", "")
-    t.add_row("scheduled process F0 (model)", f"{ev.scheduled_F_min:.2f} min",
-              "model reproduces the target" if ev.scheduled_F_min >= ev.target_F_min
-              else "model falls SHORT of the target")
+    F = "F0" if ev.F0_min is None or abs(ev.F0_min - ev.delivered_F_min) < 1e-12 else "F"
+    headline = f"{F} so far (cycle still running)" if ev.cycle.running else f"delivered {F} (the guidance uses it)"
+    t.add_row(headline, f"{ev.delivered_F_min:.2f} min",
+              ("meets" if margin >= 0 else "BELOW") + f" target by {abs(margin):.2f} min"
+              + (f"; {ev.F_basis}" if ev.F_basis else ""))
+    if ev.model_F_min is not None and abs(ev.model_F_min - ev.delivered_F_min) > 1e-9:
+        t.add_row(f"  model {F} on the record", f"{ev.model_F_min:.2f} min", "before the relative correction")
+    if ev.interpolated_F_min is not None and abs(ev.interpolated_F_min - (ev.model_F_min or ev.delivered_F_min)) > 1e-9:
+        t.add_row(f"  interpolated {F} (not used)", f"{ev.interpolated_F_min:.2f} min",
+                  "straight lines between readings, gaps credited: a friendlier figure")
+    if F == "F" and ev.F0_min is not None:
+        t.add_row("  F0 (121.1 °C, z 10 °C)", f"{ev.F0_min:.2f} min", "the botulinum figure")
+    t.add_row(f"filed target {F}", f"{ev.target_F_min:.2f} min", "")
+    ratio = ev.scheduled_F_min / ev.target_F_min if ev.target_F_min else float("nan")
+    t.add_row(f"scheduled process {F} (model)", f"{ev.scheduled_F_min:.2f} min",
+              f"{ratio:.2f} x the target" + ("" if 0.85 <= ratio <= 1.15 else " (see the model-vs-filed flag)"))
+    if ev.ball_formula_F_min is not None:
+        t.add_row(f"scheduled process {F} (Ball's formula)", f"{ev.ball_formula_F_min:.2f} min",
+                  "the hand cross-check of the filed process")
     if ev.projected_F_min is not None and ev.cycle.running:
         t.add_row("projected F0 if the rest runs as filed", f"{ev.projected_F_min:.2f} min", "cycle still running")
     if ev.extension_to_target_min == 0.0:
@@ -65,9 +79,13 @@ def figures_table(ev: Evaluation) -> Table:
         t.add_row("a full reprocess as filed adds", f"{ev.reprocess_F_min:.2f} min",
                   f"total {ev.total_F_with_reprocess_min:.2f} min, from "
                   f"{ev.reprocess['reprocess_from_temperature_C']:.1f} °C")
-    t.add_row("spoilage probability per container", fmt_probability(ev.spoilage_probability),
-              f"filed target: {fmt_probability(ev.target_spoilage_probability)}")
+    t.add_row("spoilage probability per container",
+              fmt_probability(ev.spoilage_probability, ev.log10_spoilage_probability),
+              f"filed target: {fmt_probability(ev.target_spoilage_probability, ev.log10_target_spoilage_probability)}")
     t.add_row("expected nonsterile containers in lot", f"{ev.expected_nonsterile_containers:.3g}", "")
+    if ev.lot_nonsterile_probability is not None:
+        t.add_row("probability of at least one in the lot",
+                  fmt_probability(ev.lot_nonsterile_probability, ev.log10_lot_nonsterile_probability), "")
     ok = ev.botulinum_log_reductions >= ev.botulinum_log_reductions_required
     t.add_row("botulinum log reductions", f"{ev.botulinum_log_reductions:.1f}",
               f"{'meets' if ok else 'BELOW'} {ev.botulinum_log_reductions_required:g}D")
@@ -81,7 +99,7 @@ def figures_table(ev: Evaluation) -> Table:
     if mc:
         t.add_row("F0, 5th percentile (Monte Carlo)", f"{mc['F_p05_min']:.2f} min",
                   f"{mc['samples']} samples, seed {mc['seed']}")
-        t.add_row("probability F0 below target", f"{mc['probability_F_below_target']:.1%}", "")
+        t.add_row("probability F0 below target", f"{mc.get('probability_below_target', mc['probability_F_below_target']):.1%}", "")
         t.add_row("spoilage probability, 95th percentile", fmt_probability(mc["spoilage_probability_p95"]), "")
     t.add_row("lethality established", "yes" if ev.lethality_established else "NO",
               "fully" if ev.lethality_fully_established else "not fully (see flags)")

@@ -90,13 +90,35 @@ def build_retort_profile(loaded: LoadedCase, model: ColdSpotModel) -> tuple[prof
                                  come_up_min=come_up, hold_min=hold,
                                  cooling_min=cooling_time_min(process, model))
         profile = replace(profile, source="filed cycle + events" if events else "filed cycle")
-    for i, ev in enumerate(events):
-        if ev.kind == "temperature-low":
-            try:
-                profile = cycle.apply_temperature_low(profile, ev.start_min, ev.end_min, ev.temperature_C)
-            except RecordError as exc:
-                raise CaseError(f"deviation.events[{i}]: {exc.message}", source=loaded.source) from None
+    for i, start, end, low in _low_intervals(events, process, profile):
+        try:
+            profile = cycle.apply_temperature_low(profile, start, end, low)
+        except RecordError as exc:
+            raise CaseError(f"deviation.events[{i}]: {exc.message}", source=loaded.source) from None
     return profile, flags
+
+
+def _low_intervals(events, process: Process, profile: prof.RetortProfile):
+    """The low intervals the events show: each ``temperature-low`` as entered, and each
+    ``reading`` below the process temperature from its time until the next reading at or above
+    it (or the end of the record): one reading does not show when the retort came back."""
+    out = [(i, ev.start_min, ev.end_min, ev.temperature_C) for i, ev in enumerate(events)
+           if ev.kind == "temperature-low"]
+    readings = sorted((ev.at_min, ev.temperature_C, i) for i, ev in enumerate(events) if ev.kind == "reading")
+    PT = process.process_temperature_C
+    end_of_record = float(profile.time_min[-1])
+    at_PT = np.flatnonzero(profile.temperature_C >= PT - 1e-9)
+    hold_start = float(profile.time_min[at_PT[0]]) if at_PT.size else end_of_record
+    for k, (at, value, i) in enumerate(readings):
+        # Below the process temperature during the come-up is the come-up, not a drop.
+        if value >= PT or at > end_of_record or at < hold_start:
+            continue
+        later = [r for r in readings[k + 1:] if r[1] >= PT]
+        until = min(later[0][0], end_of_record) if later else end_of_record
+        lowest = min([value] + [r[1] for r in readings[k + 1:] if r[0] < until])
+        if until > at:
+            out.append((i, at, until, lowest))
+    return out
 
 
 def _is_running(profile: prof.RetortProfile, analysis: cycle.CycleAnalysis) -> bool:
@@ -200,12 +222,19 @@ def _settings(rule_set):
 
 
 def _measured(loaded: LoadedCase, process: Process, profile: prof.RetortProfile,
-              conservative: bool) -> Delivered:
-    """A measured cold-spot log, integrated as it is (the lower reading between samples by default)."""
+              conservative: bool, flags: list[FlagOut] | None = None) -> Delivered:
+    """A measured cold-spot log, checked against the retort log and integrated as it is (the
+    lower reading between samples by default, nothing credited across a gap over the limit)."""
     measured = _parse_cached(loaded.cold_spot_log_text, loaded.cold_spot_log_source or "cold-spot log",
                              "cold-spot")
+    limit = loaded.case.deviation.record_gap_limit_min
+    found = cycle.check_cold_spot_log(measured, profile, limit, loaded.case.deviation.initial_temperature_C)
+    if flags is not None:
+        flags += [FlagOut(code=f.code, message=f.message, start_min=f.start_min, end_min=f.end_min,
+                          value=f.value) for f in found]
+    gaps = [(f.start_min, f.end_min) for f in found] if conservative else []
     F, cum = general_method(measured.time_min, measured.temperature_C, process.reference_temperature_C,
-                            process.z_C, conservative=conservative)
+                            process.z_C, conservative=conservative, uncredited_min=gaps)
     retort_on = np.interp(measured.time_min, profile.time_min, profile.temperature_C)
     return Delivered(measured.time_min, retort_on, measured.temperature_C, cum, float(F), None, conservative)
 
@@ -261,7 +290,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
     gaps = [(float(t_rec[i]), float(t_rec[i + 1]))
             for i in np.flatnonzero(np.diff(t_rec) > dev.record_gap_limit_min)]
     if loaded.cold_spot_log_text is not None:
-        delivered = _measured(loaded, process, profile, conservative)
+        delivered = _measured(loaded, process, profile, conservative, flags)
         interpolated = delivered.F_min if not conservative else _measured(loaded, process, profile, False).F_min
         source = "measured"
     else:

@@ -12,6 +12,7 @@ from deviation.guidance.rules import Rule, RuleSet
 from deviation.guidance.vocabulary import (
     DEVIATION_FLAG_CODES,
     DISPOSITION_SUMMARY,
+    INFORMATION_FLAG_CODES,
     STANDING_CAUTION,
 )
 
@@ -83,7 +84,9 @@ class _SafeFacts(dict):
 
 def _reason_mapping(facts: Mapping[str, Any], flags: Sequence[str]) -> _SafeFacts:
     mapping = _SafeFacts({name: _Shown(value) for name, value in facts.items()})
-    mapping["deviation_flags"] = _Shown(", ".join(flags) if flags else "none")
+    # The flags that are deviations of this cycle (not the information about the filed process).
+    shown = [flag for flag in flags if flag not in INFORMATION_FLAG_CODES]
+    mapping["deviation_flags"] = _Shown(", ".join(shown) if shown else "none")
     return mapping
 
 

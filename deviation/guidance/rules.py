@@ -56,12 +56,9 @@ def default_rules_path() -> Path:
     override = os.environ.get(_RULES_DIR_ENV)
     if override:
         return Path(override).expanduser() / _DEFAULT_FILE_NAME
-    from importlib.resources import files
+    from deviation.resources import shipped
 
-    installed = files("deviation").joinpath("_data", "rules", _DEFAULT_FILE_NAME)
-    if installed.is_file():
-        return Path(str(installed))
-    return Path(__file__).resolve().parents[2] / "rules" / _DEFAULT_FILE_NAME
+    return shipped("rules") / _DEFAULT_FILE_NAME
 
 
 def _check_template(text: str) -> str:
@@ -344,9 +341,13 @@ def _validation_lines(
     return lines
 
 
+# In a rules folder, the input bounds (rules/limits.toml) are not a rule file.
+_NOT_RULE_FILES = ("limits.toml",)
+
+
 def _rule_files(path: Path) -> list[Path]:
     if path.is_dir():
-        files = sorted(path.glob("*.toml"))
+        files = sorted(p for p in path.glob("*.toml") if p.name not in _NOT_RULE_FILES)
         if not files:
             raise RulesError(f"{path}: the rules folder holds no *.toml rule files")
         return files

@@ -56,7 +56,7 @@ TEXT_FACTS: tuple[str, ...] = ("critical_factors_out", "deviation_flags")
 """Facts usable only as ``{placeholders}`` in reasons, never in conditions.
 
 ``critical_factors_out``: the critical factors outside their filed limits, in words (given by the
-evaluation when it has them); ``deviation_flags``: the flag codes passed in, comma-separated
+evaluation when it has them); ``deviation_flags``: the deviation flag codes passed in (not the information flags), comma-separated
 (always filled in by this module).
 """
 

@@ -3,6 +3,8 @@
 
 from __future__ import annotations
 
+import math
+
 # Each disposition has a word, a symbol and a style: colour is never the only signal.
 DISPOSITION_LOOK = {
     "no-deviation": ("NO DEVIATION", "✓", "green"),
@@ -13,10 +15,18 @@ DISPOSITION_LOOK = {
 }
 
 
-def fmt_probability(p: float) -> str:
-    """A probability per container, readable at a glance (1 in N)."""
-    if p <= 0.0:
-        return "< 1e-300"
+def fmt_probability(p: float, log10_p: float | None = None) -> str:
+    """A probability, readable at a glance (1 in N); never "0" for a positive probability.
+
+    ``log10_p`` (the evaluation's ``log10_`` twin) keeps the exponent of a probability that
+    underflows to 0 in double precision.
+    """
+    if p <= 0.0 or (p < 1e-300 and log10_p is not None):
+        if log10_p is None or not math.isfinite(log10_p):
+            return "below 1e-300 (exponent not given)" if p <= 0.0 else f"{p:.2e}"
+        exponent = math.floor(log10_p)
+        mantissa = 10.0 ** (log10_p - exponent)
+        return f"{mantissa:.2f}e{exponent:d} (1 in 1e{-exponent:d})"
     if p >= 0.5:
         return f"{p:.3f}"
     return f"{p:.2e} (1 in {1.0 / p:,.0f})"

@@ -17,16 +17,20 @@ from pathlib import Path
 from typing import Annotated, Any, Literal
 
 from pydantic import (
+    AfterValidator,
     AliasChoices,
     BaseModel,
     ConfigDict,
     Field,
     ValidationError,
+    ValidationInfo,
     field_validator,
     model_validator,
 )
 
 from deviation.errors import CaseError
+from deviation.inputs import limits
+from deviation.inputs.files import read_bounded
 from deviation.inputs.units import fahrenheit_difference_to_celsius, fahrenheit_to_celsius
 
 # Temperature-valued keys that may be written with _F instead of _C.
@@ -64,17 +68,90 @@ def _accept_fahrenheit(data: Any) -> Any:
     return data
 
 
+def _bounds() -> dict[str, tuple[float, float, str]]:
+    """Field name -> (lowest, highest, unit) from the limits in force (``rules/limits.toml``)."""
+    lim = limits.current()
+    dims = (lim.container_dimension_min_mm, lim.container_dimension_max_mm, "mm")
+    fh = (lim.fh_min_min, lim.fh_max_min, "min")
+    j = (lim.j_min, lim.j_max, "")
+    D = (lim.D_min_min, lim.D_max_min, "min")
+    z = (lim.z_min_C, lim.z_max_C, "°C")
+    temperature = (-50.0, lim.retort_reading_max_C, "°C")
+    return {
+        "process_temperature_C": (lim.process_temperature_min_C, lim.process_temperature_max_C, "°C"),
+        "process_time_min": (1e-3, lim.process_time_max_min, "min"),
+        "come_up_time_min": (0.0, lim.come_up_time_max_min, "min"),
+        "cooling_time_min": (1e-3, lim.process_time_max_min, "min"),
+        "target_F_min": (lim.target_F_min_min, lim.target_F_max_min, "min"),
+        "reference_temperature_C": (lim.process_temperature_min_C - 30.0, lim.process_temperature_max_C, "°C"),
+        "z_C": z, "spoilage_z_C": z,
+        "spoilage_D_min": D, "botulinum_D_min": D,
+        "spores_per_container": (1e-12, lim.spores_per_container_max, ""),
+        "botulinum_log_reductions_required": (1.0, 100.0, ""),
+        "diameter_mm": dims, "height_mm": dims, "length_mm": dims, "width_mm": dims, "thickness_mm": dims,
+        "fh_min": fh, "fc_min": fh, "jh": j, "jc": j,
+        "thermal_diffusivity_m2_s": (lim.diffusivity_min_m2_s, lim.diffusivity_max_m2_s, "m²/s"),
+        "surface_heat_transfer_W_m2K": (1.0, lim.surface_heat_transfer_max_W_m2K, "W/(m²·K)"),
+        "thermal_conductivity_W_mK": (0.01, 100.0, "W/(m·K)"),
+        "minimum_initial_temperature_C": (-50.0, lim.initial_temperature_max_C, "°C"),
+        "initial_temperature_C": (-50.0, lim.initial_temperature_max_C, "°C"),
+        "cooling_water_temperature_C": (0.0, lim.initial_temperature_max_C, "°C"),
+        "come_up_start_temperature_C": (-50.0, lim.retort_reading_max_C, "°C"),
+        "reprocess_from_temperature_C": (-50.0, lim.initial_temperature_max_C, "°C"),
+        "spoilage_reference_temperature_C": (lim.process_temperature_min_C - 30.0, lim.process_temperature_max_C, "°C"),
+        "temperature_C": temperature,
+        "record_gap_limit_min": (1e-3, lim.record_gap_limit_max_min, "min"),
+        "start_min": (0.0, lim.record_span_max_min, "min"),
+        "end_min": (0.0, lim.record_span_max_min, "min"),
+        "at_min": (0.0, lim.record_span_max_min, "min"),
+    }
+
+
+def _check_bound(name: str, value: Any) -> Any:
+    """A bounded number inside its bounds; a °C value that reads well as °F says so."""
+    bounds = _bounds()
+    if name not in bounds or not isinstance(value, (int, float)) or isinstance(value, bool):
+        return value
+    low, high, unit = bounds[name]
+    if low <= value <= high:
+        return value
+    message = f"{value:g} {unit} is outside {low:g} to {high:g} {unit}".replace("  ", " ").rstrip()
+    if unit == "°C" and value > high:
+        as_C = (value - 32.0) * 5.0 / 9.0
+        if max(low, 0.0) <= as_C <= high:
+            message += f"; if it is °F ({value:g} °F = {as_C:.1f} °C), write {name[:-2]}_F = {value:g}"
+    raise ValueError(message)
+
+
+def _not_blank(text: str) -> str:
+    stripped = text.strip()
+    if not stripped:
+        raise ValueError("must not be empty or blank")
+    return stripped
+
+
+Text = Annotated[str, AfterValidator(_not_blank)]
+"""Text that means something: surrounding blanks are dropped, a blank value is refused."""
+
+
 class _Model(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+    # Strict: a number is a number (true, "6" or 6e999 are refused), never NaN or infinity.
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True, strict=True,
+                              allow_inf_nan=False)
 
     @model_validator(mode="before")
     @classmethod
     def _units(cls, data: Any) -> Any:
         return _accept_fahrenheit(data)
 
+    @field_validator("*", mode="after")
+    @classmethod
+    def _in_bounds(cls, value: Any, info: ValidationInfo) -> Any:
+        return _check_bound(info.field_name, value)
+
 
 Positive = Annotated[float, Field(gt=0)]
-TemperatureC = Annotated[float, Field(ge=-50, le=200)]
+TemperatureC = float  # bounded by rules/limits.toml, per key
 
 
 # C. botulinum types A and B: D at 121.1 °C (Stumbo 1973, Thermobacteriology in Food Processing).
@@ -195,7 +272,7 @@ class AlternateProcess(_Model):
 class CriticalFactor(_Model):
     """A limit filed as a critical factor of the scheduled process."""
 
-    name: str = Field(min_length=1)
+    name: Text
     unit: str = ""
     min: float | None = None
     max: float | None = None
@@ -212,8 +289,8 @@ class CriticalFactor(_Model):
 class Process(_Model):
     """The filed scheduled process."""
 
-    id: str = Field(min_length=1)
-    product: str = Field(min_length=1)
+    id: Text
+    product: Text
     retort_type: str = "still steam"
     process_temperature_C: TemperatureC
     process_time_min: Positive = Field(description="Hold at process temperature after come-up [min]")
@@ -237,6 +314,14 @@ class Process(_Model):
     alternate: list[AlternateProcess] = Field(default_factory=list)
     critical_factors: list[CriticalFactor] = Field(default_factory=list)
 
+    @model_validator(mode="after")
+    def _temperatures(self) -> Process:
+        if self.minimum_initial_temperature_C >= self.process_temperature_C:
+            raise ValueError(f"minimum_initial_temperature_C {self.minimum_initial_temperature_C:g} °C is at or "
+                             f"above the process temperature {self.process_temperature_C:g} °C; expected a "
+                             "product temperature at steam on below it")
+        return self
+
     @field_validator("critical_factors")
     @classmethod
     def _unique_factors(cls, factors: list[CriticalFactor]) -> list[CriticalFactor]:
@@ -256,11 +341,15 @@ class DeviationEvent(_Model):
     - ``temperature-low``: ``start_min``, ``end_min``, ``temperature_C`` (the lowest reading,
       applied to the whole interval, as a process authority reads the bottom of the trace);
     - ``hold-time``: the hold actually given, ``process_time_min`` (shorter or longer than filed);
-    - ``come-up-time``: the come-up actually taken, ``come_up_time_min``.
+    - ``come-up-time``: the come-up actually taken, ``come_up_time_min``;
+    - ``reading``: one reading of the retort temperature at ``at_min``, ``temperature_C`` (a
+      reading below the process temperature during the hold counts as low from then until the
+      next reading at or above it, or the end of the hold).
     Times are minutes from steam on.
     """
 
-    kind: Literal["temperature-low", "hold-time", "come-up-time"]
+    kind: Literal["temperature-low", "hold-time", "come-up-time", "reading"]
+    at_min: Annotated[float, Field(ge=0)] | None = None
     start_min: Annotated[float, Field(ge=0)] | None = None
     end_min: Annotated[float, Field(ge=0)] | None = None
     temperature_C: TemperatureC | None = None
@@ -272,7 +361,8 @@ class DeviationEvent(_Model):
     def _fields(self) -> DeviationEvent:
         need = {"temperature-low": ("start_min", "end_min", "temperature_C"),
                 "hold-time": ("process_time_min",),
-                "come-up-time": ("come_up_time_min",)}[self.kind]
+                "come-up-time": ("come_up_time_min",),
+                "reading": ("at_min", "temperature_C")}[self.kind]
         missing = [k for k in need if getattr(self, k) is None]
         if missing:
             raise ValueError(f"event '{self.kind}' needs {', '.join(need)}; missing {', '.join(missing)}")
@@ -282,7 +372,7 @@ class DeviationEvent(_Model):
 
 
 class CriticalFactorReading(_Model):
-    name: str = Field(min_length=1)
+    name: Text
     value: float
     note: str = ""
 
@@ -309,8 +399,8 @@ class UncertaintySpec(_Model):
 class Deviation(_Model):
     """What happened to this lot."""
 
-    lot: str = Field(min_length=1)
-    retort_id: str = Field(min_length=1)
+    lot: Text
+    retort_id: Text
     plant: str = ""
     date: str = ""
     lot_size_containers: Annotated[int, Field(ge=1)]
@@ -336,6 +426,15 @@ class Case(_Model):
 
     @model_validator(mode="after")
     def _consistency(self) -> Case:
+        PT = self.process.process_temperature_C
+        it = self.deviation.initial_temperature_C
+        if it >= PT:
+            raise ValueError(f"deviation.initial_temperature_C {it:g} °C is at or above the process temperature "
+                             f"{PT:g} °C; expected the product's temperature at steam on, below it")
+        lot_max = limits.current().lot_size_max_containers
+        if self.deviation.lot_size_containers > lot_max:
+            raise ValueError(f"deviation.lot_size_containers {self.deviation.lot_size_containers} is above "
+                             f"{lot_max}; expected the containers of one lot")
         filed = {f.name.strip().lower() for f in self.process.critical_factors}
         for i, reading in enumerate(self.deviation.critical_factor_readings):
             if reading.name.strip().lower() not in filed:
@@ -392,23 +491,69 @@ class LoadedCase:
         )
 
 
+def _shown(value: Any) -> str:
+    """A value as the user wrote it in TOML."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return repr(value if len(value) <= 40 else value[:37] + "...")
+    if isinstance(value, float):
+        return f"{value:g}"
+    return repr(value)
+
+
+def _plain(err: dict) -> str:
+    """One pydantic error in the words of a case file."""
+    kind, found = err["type"], err.get("input")
+    ctx = {k: (f"{v:g}" if isinstance(v, (int, float)) and not isinstance(v, bool) else v)
+           for k, v in (err.get("ctx") or {}).items()}
+    words = {
+        "float_type": "expected a number",
+        "float_parsing": "expected a number",
+        "int_type": "expected a whole number",
+        "int_parsing": "expected a whole number",
+        "int_from_float": "expected a whole number",
+        "finite_number": "expected a finite number",
+        "string_type": "expected text",
+        "bool_type": "expected true or false",
+        "list_type": "expected a list",
+        "dict_type": "expected a table",
+        "model_type": "expected a table",
+        "greater_than": f"expected a number above {ctx.get('gt')}",
+        "greater_than_equal": f"expected at least {ctx.get('ge')}",
+        "less_than": f"expected a number below {ctx.get('lt')}",
+        "less_than_equal": f"expected at most {ctx.get('le')}",
+        "string_too_short": "must not be empty",
+    }
+    if kind == "literal_error":
+        msg = "expected " + str(ctx.get("expected", "")).replace(" or ", " or ")
+    elif kind in words:
+        msg = words[kind]
+    else:
+        msg = err["msg"]
+        if msg.startswith("Value error, "):
+            msg = msg[len("Value error, "):]
+        return msg
+    if found is not None and not isinstance(found, (dict, list)):
+        msg += f" (found {_shown(found)})"
+    return msg
+
+
 def _format_validation(exc: ValidationError) -> str:
-    """One ``field.path: message`` line per problem."""
+    """One ``field.path: message`` line per problem, in the words of a case file."""
     lines = []
     for err in exc.errors():
         path = ""
         for part in err["loc"]:
+            if isinstance(part, str) and part.startswith("function-"):
+                continue
             path += f"[{part}]" if isinstance(part, int) else (f".{part}" if path else str(part))
-        msg = err["msg"]
-        if msg.startswith("Value error, "):
-            msg = msg[len("Value error, "):]
         if err["type"] == "extra_forbidden":
             msg = "unknown key (not part of the case contract)"
         elif err["type"] == "missing":
             msg = "required key is missing"
-        found = err.get("input")
-        if err["type"] not in ("missing", "extra_forbidden", "value_error", "model_type") and not isinstance(found, dict):
-            msg = f"{msg} (found {found!r})"
+        else:
+            msg = _plain(err)
         lines.append(f"{path}: {msg}" if path else msg)
     return "\n".join(lines)
 
@@ -422,31 +567,25 @@ def parse_case(data: dict, *, source: str = "case") -> Case:
 
 
 def _read_text(path: Path, *, what: str, named_in: str) -> str:
+    data = read_bounded(path, what=what, named_in=named_in)
     try:
-        return path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise CaseError(f"{what} file not found: {path}", source=named_in) from None
+        return data.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         raise CaseError(f"{what} {path} is not UTF-8 text ({exc.reason} at byte {exc.start})", source=named_in) from None
-    except OSError as exc:
-        raise CaseError(f"{what} {path} cannot be read: {exc.strerror}", source=named_in) from None
 
 
 def load_toml(path: str | Path) -> dict:
     """Read a TOML file; syntax errors name the file, line and column."""
     path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise CaseError("file not found", source=str(path)) from None
-    except OSError as exc:
-        raise CaseError(f"cannot be read: {exc.strerror}", source=str(path)) from None
+    raw = read_bounded(path, what="case", named_in=str(path))
     try:
         return tomllib.loads(raw.decode("utf-8-sig"))
     except UnicodeDecodeError:
         raise CaseError("not UTF-8 text", source=str(path)) from None
     except tomllib.TOMLDecodeError as exc:
         raise CaseError(f"TOML syntax error: {exc}", source=str(path)) from None
+    except RecursionError:
+        raise CaseError("TOML nested too deeply to be a case file", source=str(path)) from None
 
 
 def load_case(path: str | Path, *, process_resolver=None) -> LoadedCase:
@@ -470,6 +609,16 @@ def load_case(path: str | Path, *, process_resolver=None) -> LoadedCase:
         data = dict(data)
         data["process"] = process_resolver(dev["process_ref"])
     case = parse_case(data, source=source)
+    dev = case.deviation
+    for key in ("retort_log", "cold_spot_log"):
+        value = getattr(dev, key)
+        if value is not None and not value.strip():
+            raise CaseError(f"deviation.{key} is empty; give the path of the CSV file, or leave the key out",
+                            source=source)
+    if not dev.retort_log and not dev.events:
+        raise CaseError("no record of the cycle: give deviation.retort_log (the recorder's CSV) or the "
+                        "readings seen ([[deviation.events]]); nothing can be evaluated without one",
+                        source=source)
     retort_text = retort_src = cold_text = cold_src = None
     base = path.parent
     if case.deviation.retort_log:
@@ -481,7 +630,7 @@ def load_case(path: str | Path, *, process_resolver=None) -> LoadedCase:
         p = p if p.is_absolute() else base / p
         cold_text, cold_src = _read_text(p, what="deviation.cold_spot_log", named_in=source), str(p)
     digest = hashlib.sha256()
-    digest.update(path.read_bytes())
+    digest.update(read_bounded(path, what="case", named_in=source))
     for text in (retort_text, cold_text):
         digest.update(b"\0" + (text or "").encode())
     return LoadedCase(

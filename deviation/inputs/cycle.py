@@ -24,7 +24,7 @@ from deviation.errors import RecordError
 from deviation.inputs.logs import RetortProfile
 
 __all__ = ["Flag", "LowInterval", "CycleAnalysis", "filed_cycle", "apply_temperature_low",
-           "resample_uniform", "analyse_cycle", "longest_run_at_or_above"]
+           "resample_uniform", "analyse_cycle", "longest_run_at_or_above", "check_cold_spot_log"]
 
 
 # Differences of time below this are floating-point rounding, not a deviation [min] (6e-5 s).
@@ -604,3 +604,40 @@ def longest_run_at_or_above(
     last = np.flatnonzero(edges == -1) - 1
     longest = int(np.argmax(t[last] - t[first]))
     return float(t[first[longest]]), float(t[last[longest]])
+
+
+def check_cold_spot_log(cold: RetortProfile, retort: RetortProfile, gap_limit_min: float,
+                        initial_C: float | None = None) -> list[Flag]:
+    """A measured cold-spot log checked against the retort log it belongs with.
+
+    Refused (``RecordError``): the same readings as the retort log (a file named twice), or a
+    cold spot hotter than the hottest the retort had been so far (a product heated by its
+    surface cannot be, beyond where it started; 1 °C allowed for the two sensors). Flagged: a gap between cold-spot
+    readings longer than the limit (no lethality is credited across it).
+    """
+    if (cold.time_min.shape == retort.time_min.shape and np.allclose(cold.time_min, retort.time_min)
+            and np.allclose(cold.temperature_C, retort.temperature_C, atol=0.05)):
+        raise RecordError("the cold-spot log holds the same readings as the retort log; expected the "
+                          "thermocouple at the container's cold spot, not the retort", source=cold.source)
+    start = max(float(cold.temperature_C[0]), initial_C if initial_C is not None else -np.inf)
+    hottest_so_far = np.maximum(np.maximum.accumulate(retort.temperature_C), start)
+    at = np.interp(cold.time_min, retort.time_min, hottest_so_far, left=hottest_so_far[0])
+    above = np.flatnonzero(cold.temperature_C > at + _COLD_SPOT_SENSOR_TOLERANCE_C)
+    if above.size:
+        i = int(above[0])
+        raise RecordError(
+            f"at {cold.time_min[i]:g} min the cold spot reads {cold.temperature_C[i]:.1f} °C, above the "
+            f"hottest the retort had been by then ({at[i]:.1f} °C); a container heated by the retort "
+            "cannot be hotter: check that the two logs belong together and their time axes",
+            source=cold.source)
+    flags = []
+    for i in np.flatnonzero(np.diff(cold.time_min) > gap_limit_min):
+        a, b = float(cold.time_min[i]), float(cold.time_min[i + 1])
+        flags.append(Flag("record-gap", f"cold-spot log: no reading from {a:.2f} to {b:.2f} min, a gap of "
+                          f"{b - a:.2f} min, longer than the {gap_limit_min:g} min allowed; no lethality is "
+                          "credited across it", start_min=a, end_min=b, value=b - a))
+    return flags
+
+
+# Two sensors (retort probe, thermocouple) may disagree by this much [°C] (common practice).
+_COLD_SPOT_SENSOR_TOLERANCE_C = 1.0

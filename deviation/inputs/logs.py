@@ -29,7 +29,9 @@ from pathlib import Path
 
 import numpy as np
 
-from deviation.errors import RecordError
+from deviation.errors import DeviationError, RecordError
+from deviation.inputs import limits
+from deviation.inputs.files import read_bounded
 from deviation.inputs.units import fahrenheit_to_celsius
 
 __all__ = [
@@ -209,7 +211,16 @@ def _header_columns(
                     source=source,
                 )
             found[canonical[name]] = index
-    listed = ", ".join(repr(name.strip()) for name in header)
+    # Quote at most a few short field names: a file named by mistake (a password file, an
+    # environment dump) must not be echoed into the message.
+    looks_like_header = ("time" in header[0].lower() and any(sep in header[0] for sep in ";\t"))
+    if len(header) == 1 and "," not in header[0] and not looks_like_header:
+        listed = "one field with no comma: not a CSV header"
+    elif len(header) == 1:
+        listed = repr(header[0].strip()[:40])
+    else:
+        shown = [repr(name.strip()[:20] + ("..." if len(name.strip()) > 20 else "")) for name in header[:4]]
+        listed = ", ".join(shown) + (", ..." if len(header) > 4 else "")
     hint = ""
     if len(header) == 1 and (";" in header[0] or "\t" in header[0]):
         hint = "; fields must be separated by commas"
@@ -351,6 +362,19 @@ def checked_times(time_name: str, times: list[float], stamps: list, line_numbers
             "times increasing strictly",
             source=source,
         )
+    # A bounded span before anything is built on it: one glitched row must not make a
+    # resampled record of millions of points.
+    span_max = limits.current().record_span_max_min
+    over = np.flatnonzero(time_min > span_max)
+    if over.size:
+        i = int(over[0])
+        jump = f", {step[i - 1]:g} min after the reading before it (line {line_numbers[i - 1]})" if i else ""
+        raise RecordError(
+            f"line {line_numbers[i]}, column {time_name}: time {time_texts[i]}{unit_text} is "
+            f"{time_min[i]:g} min after the first reading{jump}; a record spans at most "
+            f"{span_max:g} min (a glitched row?)",
+            source=source,
+        )
     return time_min
 
 
@@ -416,6 +440,12 @@ def parse_log_text(
         header, header_line, source, what
     )
     data = rows[1:]
+    rows_max = limits.current().record_rows_max
+    if len(data) > rows_max:
+        raise RecordError(
+            f"the {what} has {len(data):,} readings, over the {rows_max:,} one record may have",
+            source=source,
+        )
     if not data:
         raise RecordError(
             f"the {what} has a header (line {header_line}) but no readings; expected at least "
@@ -445,6 +475,14 @@ def parse_log_text(
                 f"(columns {time_name} and {temperature_name} as in the header)",
                 source=source,
             )
+        if len(fields) > len(header):
+            comma = (" - decimal commas? write decimals with a point (28.00, not 28,00)"
+                     if all(f.strip().isdigit() for f in fields) else "")
+            raise RecordError(
+                f"line {line}: {len(fields)} fields, the header has {len(header)}{comma}; expected one "
+                "value per column",
+                source=source,
+            )
         time_text = fields[time_index].strip()
         if time_name == "time_min":
             times.append(_number(time_text, line, "time_min", "minutes from steam on", source))
@@ -472,10 +510,26 @@ def parse_log_text(
         profile = _checked_profile(
             values, temperature_name, unit, line_numbers, time_min, what, source, sha256
         )
+        if kind == "retort":
+            _within_reading_bounds(profile.temperature_C, values, unit, temperature_name, line_numbers, source)
         if indicating is None:
             return profile
         return _with_indicating(profile, np.array(indicating_values), indicating[0], line_numbers,
                                 what, source)
+
+
+def _within_reading_bounds(temperature_C, values, unit, column, line_numbers, source) -> None:
+    """A retort reading inside the bounds of ``rules/limits.toml`` (0 to 150 °C by default)."""
+    lim = limits.current()
+    out = np.flatnonzero((temperature_C < lim.retort_reading_min_C) | (temperature_C > lim.retort_reading_max_C))
+    if out.size:
+        i = int(out[0])
+        found = f"{values[i]:g} {unit}" + (f" ({temperature_C[i]:.1f} °C)" if unit == "°F" else "")
+        raise RecordError(
+            f"line {line_numbers[i]}, column {column}: reading {found} is outside "
+            f"{lim.retort_reading_min_C:g} to {lim.retort_reading_max_C:g} °C, where a retort reads",
+            source=source,
+        )
 
 
 def _with_indicating(profile: RetortProfile, values: np.ndarray, column: str,
@@ -572,9 +626,9 @@ def read_log(path, *, kind: str = "retort") -> RetortProfile:
     what = _kind_name(kind)
     source = str(path)
     try:
-        raw = Path(path).read_bytes()
-    except OSError as exc:
-        raise RecordError(f"cannot read the {what}: {exc.strerror or exc}", source=source) from None
+        raw = read_bounded(Path(path), what=f"the {what}", named_in=source)
+    except DeviationError as exc:
+        raise RecordError(exc.message, source=source) from None
     digest = hashlib.sha256(raw).hexdigest()
     try:
         if raw.startswith((b"\xff\xfe", b"\xfe\xff")):

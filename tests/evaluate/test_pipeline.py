@@ -253,7 +253,8 @@ def test_lowering_the_retort_never_makes_the_disposition_milder(hold, at, length
     """Issue 4 property: lower the retort anywhere, by any amount: the disposition is never milder."""
     t = np.arange(0.0, 90.0, 0.5)
     T = np.interp(t, [0, 8, hold_end, hold_end + 1, 90], [30, hold, hold, 25, 25])
-    lowered = np.where((t >= at) & (t <= at + length), T - lower, T)
+    # Lowered, but still a reading a retort can give (0 °C and up: rules/limits.toml).
+    lowered = np.where((t >= at) & (t <= at + length), np.maximum(T - lower, 0.0), T)
     a = evaluate_case(with_log(_base, t, T), what_if=False)
     b = evaluate_case(with_log(_base, t, lowered), what_if=False)
     assert _SEVERITY[b.guidance["disposition"]] >= _SEVERITY[a.guidance["disposition"]]
@@ -269,7 +270,7 @@ def test_lowering_never_milder_with_a_filed_alternate(setpoint, at, length, lowe
     """The same property on a process with a filed alternate (118.3 °C for 96 min)."""
     t = np.arange(0.0, 150.0, 0.5)
     T = np.interp(t, [0, 10, 112, 113, 150], [30, setpoint, setpoint, 25, 25])
-    lowered = np.where((t >= at) & (t <= at + length), T - lower, T)
+    lowered = np.where((t >= at) & (t <= at + length), np.maximum(T - lower, 0.0), T)
     a = evaluate_case(with_log(_chili, t, T), what_if=False)
     b = evaluate_case(with_log(_chili, t, lowered), what_if=False)
     assert _SEVERITY[b.guidance["disposition"]] >= _SEVERITY[a.guidance["disposition"]]

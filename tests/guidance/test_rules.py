@@ -150,6 +150,14 @@ DEFAULT_RULE_CASES = {
         (["scheduled-F-below-target"], dict(scheduled_F_min=5.0, scheduled_F_ratio=5 / 6, **DEV)),
         (["implausible-input"], dict(**DEV)),
     ),
+    "recorder-above-indicating": (
+        (["recorder-above-indicating"], dict(**DEV)),
+        (["temperature-low"], dict(**DEV)),
+    ),
+    "uncertainty-below-target": (
+        ([], dict(uncertainty_probability_below_target=0.06, uncertainty_F_p05_min=5.2)),
+        ([], dict(uncertainty_probability_below_target=0.05, uncertainty_F_p05_min=6.1)),
+    ),
     "implausible-input": (
         (["implausible-input"], dict(**DEV)),
         (["scheduled-F-below-target"], dict(**DEV)),

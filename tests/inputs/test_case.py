@@ -10,7 +10,7 @@ from deviation.inputs.case import LoadedCase, case_json_schema, load_case, parse
 DATA = Path(__file__).parents[1] / "data"
 
 EXPECTED_MESSAGES = {
-    'bad_shape.toml': "process.container.shape: Input should be 'cylinder' or 'brick' (found 'sphere')",
+    'bad_shape.toml': "process.container.shape: expected 'cylinder' or 'brick' (found 'sphere')",
     'both_units.toml': 'process: give process_temperature_C or process_temperature_F, not both',
     'conduction_no_fh.toml': "process.heat_penetration: model 'conduction' needs fh_min or thermal_diffusivity_m2_s",
     'cylinder_missing_height.toml': 'process.container: a cylinder needs diameter_mm, height_mm; missing height_mm',
@@ -22,16 +22,33 @@ EXPECTED_MESSAGES = {
     'missing_deviation.toml': 'deviation: required key is missing',
     'missing_log_file.toml': 'deviation.retort_log file not found: tests/data/bad_cases/no_such_log.csv',
     'missing_target.toml': 'process.target_F_min: required key is missing',
-    'negative_time.toml': 'process.process_time_min: Input should be greater than 0 (found -5)',
+    'negative_time.toml': 'process.process_time_min: expected a number above 0 (found -5)',
     'reading_unknown_factor.toml': "deviation.critical_factor_readings[0]: 'fill weight' matches no filed critical factor (filed: headspace)",
     'syntax_error.toml': "TOML syntax error: Expected ']' at the end of a table declaration (at line 27, column 11)",
-    'text_for_number.toml': "deviation.lot_size_containers: Input should be a valid integer, unable to parse string as an integer (found 'many')",
-    'unknown_event_kind.toml': "deviation.events[0].kind: Input should be 'temperature-low', 'hold-time' or 'come-up-time' (found 'steam-gone')",
+    'text_for_number.toml': "deviation.lot_size_containers: expected a whole number (found 'many')",
+    'unknown_event_kind.toml': "deviation.events[0].kind: expected 'temperature-low', 'hold-time', 'come-up-time' or 'reading' (found 'steam-gone')",
     'unknown_key.toml': 'process.comeup_minutes: unknown key (not part of the case contract)',
     'htc_without_conductivity.toml': "process.heat_penetration: surface_heat_transfer_W_m2K and thermal_conductivity_W_mK go together; give both or neither",
     'htc_with_heating_curve.toml': "process.heat_penetration: surface_heat_transfer_W_m2K needs model 'conduction' or 'finite-difference' (the heating-curve model's fh and jh already hold the surface's effect)",
     'botulinum_d_without_source.toml': "process.microbiology: botulinum_D_min 0.18 min differs from the reference 0.21 min (Stumbo 1973): give botulinum_D_source naming where the value comes from",
-    'zero_lot.toml': 'deviation.lot_size_containers: Input should be greater than or equal to 1 (found 0)',
+    'zero_lot.toml': 'deviation.lot_size_containers: expected at least 1 (found 0)',
+    # Issue 13: strict types, no blank text, finite numbers within bounds (rules/limits.toml),
+    # unit slips with the likely intended value, no record without a record, files and nesting.
+    'bool_for_number.toml': "process.heat_penetration.fh_min: expected a number (found true)",
+    'blank_lot.toml': "deviation.lot: must not be empty or blank",
+    'infinite_time.toml': "process.process_time_min: expected a finite number (found inf)",
+    'huge_come_up.toml': "process.come_up_time_min: 1e+308 min is outside 0 to 240 min",
+    'tiny_height.toml': "process.container.height_mm: 1e-308 mm is outside 1 to 2000 mm",
+    'tiny_target.toml': "process.target_F_min: 1e-308 min is outside 0.01 to 1000 min",
+    'factor_max_nan.toml': "process.critical_factors[0].max: expected a finite number (found nan)",
+    'fahrenheit_initial_temperature.toml': "deviation.initial_temperature_C: 104 °C is outside -50 to 100 °C; if it is °F (104 °F = 40.0 °C), write initial_temperature_F = 104",
+    'initial_at_process_temperature.toml': "deviation.initial_temperature_C 99 °C is at or above the process temperature 98 °C; expected the product's temperature at steam on, below it",
+    'fahrenheit_process_temperature.toml': "process.process_temperature_C: 250 °C is outside 90 to 150 °C; if it is °F (250 °F = 121.1 °C), write process_temperature_F = 250",
+    'no_record.toml': "no record of the cycle: give deviation.retort_log (the recorder's CSV) or the readings seen ([[deviation.events]]); nothing can be evaluated without one",
+    'empty_log_name.toml': "deviation.retort_log is empty; give the path of the CSV file, or leave the key out",
+    'reading_without_time.toml': "deviation.events[0]: event 'reading' needs at_min, temperature_C; missing at_min",
+    'log_is_a_folder.toml': "deviation.retort_log {folder} is a folder; expected a file",
+    'nested_deep.toml': "TOML nested too deeply to be a case file",
 }
 
 
@@ -41,6 +58,7 @@ def test_bad_case_gives_its_message(name):
     with pytest.raises(CaseError) as info:
         load_case(path)
     expected = EXPECTED_MESSAGES[name]
+    expected = expected.replace("{folder}", str(DATA / "bad_cases"))
     if name == "missing_log_file.toml":
         # The path in the message is resolved against the case file's folder.
         assert info.value.message.startswith("deviation.retort_log file not found: ")

@@ -97,6 +97,20 @@ EXPECTED_MESSAGES = {
     "short_row.csv":
         "line 3: 1 field(s) found; expected at least 2 (columns time_min and temperature_C as in "
         "the header)",
+    # Issue 13: decimal commas and extra fields, a glitched row bounded before any array is made,
+    # a file that is no log never echoed, readings a retort cannot give (rules/limits.toml).
+    "decimal_commas.csv":
+        "line 3: 3 fields, the header has 2 - decimal commas? write decimals with a point (28.00, not "
+        "28,00); expected one value per column",
+    "extra_field.csv": "line 4: 3 fields, the header has 2; expected one value per column",
+    "glitched_last_row.csv":
+        "line 6, column time_min: time 99999999.00 min is 1e+08 min after the first reading, 1e+08 min "
+        "after the reading before it (line 5); a record spans at most 2880 min (a glitched row?)",
+    "password_file.csv":
+        "line 1: no time column in the header (found one field with no comma: not a CSV header); "
+        "expected time_min (minutes) or time (ISO-8601 timestamps) in a retort log",
+    "reading_below_zero.csv":
+        "line 4, column temperature_C: reading -5 °C is outside 0 to 150 °C, where a retort reads",
 }
 
 
@@ -133,7 +147,7 @@ def test_missing_file_is_a_record_error(tmp_path):
     with pytest.raises(RecordError) as caught:
         read_log(path)
     assert caught.value.source == str(path)
-    assert caught.value.message == "cannot read the retort log: No such file or directory"
+    assert caught.value.message == f"the retort log file not found: {path}"
 
 
 def test_non_utf8_file_is_a_record_error(tmp_path):
