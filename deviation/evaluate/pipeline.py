@@ -16,7 +16,7 @@ import numpy as np
 
 from deviation import ENGINE_VERSION
 from deviation.errors import CaseError, RecordError
-from deviation.evaluate import checks
+from deviation.evaluate import checks, systems
 from deviation.evaluate.cold_spot import (
     ColdSpotModel,
     Delivered,
@@ -175,7 +175,8 @@ def _implausible_flags(case: Case, profile: prof.RetortProfile) -> list[FlagOut]
 # Flags that leave the lethality not fully established: the factor, the record or the model
 # cannot be judged by lethality alone.
 _NOT_FULLY_ESTABLISHED = {"critical-factor-out", "record-gap", "scheduled-F-below-target", "model-vs-filed",
-                          "implausible-input"}
+                          "implausible-input", "circulation-loss", "rotation-out", "rotation-stopped",
+                          "water-level-low"}
 
 # Deviations of the scheduled process that a filed alternate (another temperature and time) can cover.
 _ALTERNATE_CAN_COVER = {"temperature-low", "short-hold", "process-temperature-not-reached", "long-come-up"}
@@ -282,6 +283,14 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
     )
     flags = [FlagOut(code=f.code, message=f.message, start_min=f.start_min, end_min=f.end_min, value=f.value)
              for f in analysis.flags] + instrument_flags
+    log = (_parse_cached(loaded.retort_log_text, loaded.retort_log_source or "retort log", "retort")
+           if loaded.retort_log_text is not None else None)
+    system_found, system_facts = systems.system_flags(case, log)
+    flags += system_found
+    # Deviations are read on the record as the recorder shows it; the lethality is that of the
+    # retort's slowest-heating zone (the distribution test's offset below the sensor).
+    record = profile
+    profile = systems.cold_zone(profile, case)
 
     # The model's F on the record: the lower reading between samples, no lethality credited
     # across a gap over the limit; beside it the interpolated figure (straight lines, gaps
@@ -343,11 +352,11 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
 
     cf_flags, cf_rows = _critical_factor_flags(case)
     flags += cf_flags
-    flags += _implausible_flags(case, profile)
+    flags += _implausible_flags(case, record)
     # An alternate matters only when the scheduled process itself was missed on a time or
     # temperature factor; a cycle that met the scheduled process needs no alternate.
     missed = {f.code for f in analysis.flags} & _ALTERNATE_CAN_COVER
-    alternates = _alternates(case, profile, analysis.come_up_min) if missed else []
+    alternates = _alternates(case, record, analysis.come_up_min) if missed else []
     if alternates:
         a = alternates[0]
         flags.append(_flag("alternate-process-met",
@@ -357,7 +366,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
 
     # Projection and what-if (only where the model predicts from the retort record), on the same
     # footing as the headline.
-    running = _is_running(profile, analysis)
+    running = _is_running(record, analysis)
     projected = headline
     if running and source != "measured":
         ext_profile, _ = continue_as_filed(profile, process, analysis, model)
@@ -444,6 +453,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
         "critical_factor_out": "critical-factor-out" in codes,
         "cycle_running": running,
         "measured_cold_spot": source == "measured",
+        **system_facts,
         "gap_worst_case_F_min": worst_F0,
         # Text for reasons only (rules cannot compare on it): the factors out, with their limits.
         "critical_factors_out": "; ".join(
@@ -513,8 +523,8 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
             low_intervals=[LowIntervalOut(start_min=i.start_min, end_min=i.end_min, lowest_C=i.lowest_C,
                                           degree_minutes_below=i.degree_minutes_below)
                            for i in analysis.low_intervals],
-            retort_source=profile.source,
-            retort_sha256=profile.sha256,
+            retort_source=record.source,
+            retort_sha256=record.sha256,
         ),
         facts=facts,
         guidance=guidance,

@@ -48,6 +48,7 @@ BOOLEAN_METRICS: tuple[str, ...] = (
     "critical_factor_out",
     "cycle_running",
     "measured_cold_spot",
+    "vent_study_on_file",
 )
 """True/false facts a condition may test with ``==`` or ``!=``."""
 
@@ -79,6 +80,14 @@ FLAG_CODES: tuple[str, ...] = (
     "jh-differs-from-theory",
     "parameter-not-used",
     "surface-heat-transfer-assumed",
+    "vent-schedule-not-met",
+    "water-level-low",
+    "water-level-below-top-layer",
+    "circulation-loss",
+    "rotation-out",
+    "rotation-stopped",
+    "reel-stop",
+    "reel-speed-low",
 )
 """Flag codes the evaluation may raise; a rule naming any other code is a load-time error."""
 

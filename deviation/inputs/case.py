@@ -104,6 +104,16 @@ def _bounds() -> dict[str, tuple[float, float, str]]:
         "start_min": (0.0, lim.record_span_max_min, "min"),
         "end_min": (0.0, lim.record_span_max_min, "min"),
         "at_min": (0.0, lim.record_span_max_min, "min"),
+        "vent_time_min": (0.0, 120.0, "min"),
+        "vent_temperature_C": (50.0, lim.retort_reading_max_C, "°C"),
+        "cold_zone_offset_C": (0.0, 20.0, "°C"),
+        "water_level_above_top_mm": (1.0, 2000.0, "mm"),
+        "level_above_top_mm": (-2000.0, 2000.0, "mm"),
+        "rotation_rpm_min": (0.01, 100.0, "rpm"), "rotation_rpm_max": (0.01, 100.0, "rpm"),
+        "rpm": (0.0, 100.0, "rpm"), "reel_speed_rpm": (0.01, 100.0, "rpm"),
+        "carriers_per_min": (0.01, 1000.0, "1/min"),
+        "entry_start_min": (0.0, lim.record_span_max_min, "min"),
+        "entry_end_min": (0.0, lim.record_span_max_min, "min"),
     }
 
 
@@ -286,6 +296,88 @@ class CriticalFactor(_Model):
         return self
 
 
+SYSTEM_KINDS = ("still-steam", "water-immersion", "water-spray", "steam-air", "agitating-batch",
+                "continuous-rotary", "hydrostatic")
+# What each kind of retort system needs filed (21 CFR 113.40 (a)-(g); 9 CFR 318.305).
+_SYSTEM_NEEDS = {
+    "still-steam": ("vent_time_min", "vent_temperature_C"),
+    "water-immersion": ("water_level_above_top_mm",),
+    "water-spray": (),
+    "steam-air": (),
+    "agitating-batch": ("rotation_rpm_min", "rotation_rpm_max"),
+    "continuous-rotary": ("reel_speed_rpm", "containers_per_turn"),
+    "hydrostatic": ("carriers_per_min", "containers_per_carrier"),
+}
+
+
+class RetortSystem(_Model):
+    """The retort system of the scheduled process and its own filed critical factors.
+
+    kinds (trade terms): ``still-steam`` (21 CFR 113.40(a): the vent schedule, time and
+    temperature), ``water-immersion`` (113.40(b): the water level above the top layer),
+    ``water-spray`` and ``steam-air`` (other systems, 113.40(g)), ``agitating-batch``
+    (discontinuous agitating, 113.40(e): the rotation speed range), ``continuous-rotary``
+    (continuous agitating / reel-and-spiral, 113.40(d): the reel speed that sets the residence,
+    containers per turn), ``hydrostatic`` (113.40(f): the conveyor speed, containers per carrier).
+    """
+
+    kind: Literal["still-steam", "water-immersion", "water-spray", "steam-air", "agitating-batch",
+                  "continuous-rotary", "hydrostatic"]
+    cold_zone_offset_C: Annotated[float, Field(ge=0)] = Field(
+        0.0, description="How much the recorder's sensor reads above the retort's slowest-heating "
+                         "zone, from the temperature distribution test [°C difference]; the record is "
+                         "lowered by it")
+    vent_time_min: Positive | None = Field(None, description="Vent schedule: vents open at least [min]")
+    vent_temperature_C: TemperatureC | None = Field(
+        None, description="Vent schedule: and until the retort reads at least [°C]")
+    vent_study_on_file: bool = Field(
+        False, description="A temperature distribution study on file shows the filed process is "
+                           "delivered even when this vent schedule is missed (21 CFR 113.40(a)(12))")
+    water_level_above_top_mm: Positive | None = Field(
+        None, description="Filed water level above the top layer of containers [mm]")
+    layers: Annotated[int, Field(ge=1, le=100)] | None = Field(
+        None, description="Layers of containers in a basket (names the exposed layer)")
+    rotation_rpm_min: Positive | None = Field(None, description="Filed rotation speed, lowest [rpm]")
+    rotation_rpm_max: Positive | None = Field(None, description="Filed rotation speed, highest [rpm]")
+    reel_speed_rpm: Positive | None = Field(
+        None, description="Filed reel speed; the process time is the residence in the cooker shell at "
+                          "this speed [rpm]")
+    containers_per_turn: Annotated[int, Field(ge=1)] | None = Field(
+        None, description="Containers entering per turn of the reel [-]")
+    carriers_per_min: Positive | None = Field(
+        None, description="Filed conveyor speed, carriers entering the steam dome per minute [1/min]")
+    containers_per_carrier: Annotated[int, Field(ge=1)] | None = Field(
+        None, description="Containers per carrier [-]")
+
+    @model_validator(mode="after")
+    def _needs(self) -> RetortSystem:
+        need = _SYSTEM_NEEDS[self.kind]
+        missing = [k for k in need if getattr(self, k) is None]
+        if missing:
+            raise ValueError(f"a '{self.kind}' system needs {', '.join(need)}; missing {', '.join(missing)}")
+        other = sorted({k for ks in _SYSTEM_NEEDS.values() for k in ks} - set(need))
+        given = [k for k in other if getattr(self, k) is not None]
+        if given:
+            raise ValueError(f"{', '.join(given)} do not apply to a '{self.kind}' system")
+        if (self.rotation_rpm_min is not None and self.rotation_rpm_max is not None
+                and self.rotation_rpm_min > self.rotation_rpm_max):
+            raise ValueError(f"rotation_rpm_min {self.rotation_rpm_min:g} is above rotation_rpm_max "
+                             f"{self.rotation_rpm_max:g}")
+        return self
+
+    @property
+    def continuous(self) -> bool:
+        return self.kind in ("continuous-rotary", "hydrostatic")
+
+    def containers_per_min(self) -> float | None:
+        """Entry rate at the filed speed [containers/min] (continuous systems)."""
+        if self.kind == "continuous-rotary":
+            return self.reel_speed_rpm * self.containers_per_turn
+        if self.kind == "hydrostatic":
+            return self.carriers_per_min * self.containers_per_carrier
+        return None
+
+
 class Process(_Model):
     """The filed scheduled process."""
 
@@ -311,6 +403,9 @@ class Process(_Model):
     microbiology: Microbiology
     container: Container
     heat_penetration: HeatPenetration
+    system: RetortSystem | None = Field(
+        None, description="The retort system and its own filed critical factors; without it the "
+                          "process is evaluated as a still steam retort")
     alternate: list[AlternateProcess] = Field(default_factory=list)
     critical_factors: list[CriticalFactor] = Field(default_factory=list)
 
@@ -344,11 +439,27 @@ class DeviationEvent(_Model):
     - ``come-up-time``: the come-up actually taken, ``come_up_time_min``;
     - ``reading``: one reading of the retort temperature at ``at_min``, ``temperature_C`` (a
       reading below the process temperature during the hold counts as low from then until the
-      next reading at or above it, or the end of the hold).
-    Times are minutes from steam on.
+      next reading at or above it, or the end of the hold);
+    - ``venting``: the venting actually done, ``vent_time_min`` and ``vent_temperature_C``
+      (still steam);
+    - ``water-level``: the water above the top layer from ``start_min`` to ``end_min`` was
+      ``level_above_top_mm`` (negative: the top layer was out of the water);
+    - ``circulation-loss``: the water circulation stopped from ``start_min`` to ``end_min``;
+    - ``rotation``: the rotation speed from ``start_min`` to ``end_min`` was ``rpm`` (0: stopped);
+    - ``reel-stop``: the reel or conveyor of a continuous system stopped from ``start_min`` to
+      ``end_min``;
+    - ``reel-speed``: it ran at ``speed_fraction`` of the filed speed from ``start_min`` to
+      ``end_min``.
+    Times are minutes from steam on (for a continuous system, from the start of the shell's record).
     """
 
-    kind: Literal["temperature-low", "hold-time", "come-up-time", "reading"]
+    kind: Literal["temperature-low", "hold-time", "come-up-time", "reading", "venting", "water-level",
+                  "circulation-loss", "rotation", "reel-stop", "reel-speed"]
+    vent_time_min: Annotated[float, Field(ge=0)] | None = None
+    vent_temperature_C: TemperatureC | None = None
+    level_above_top_mm: float | None = None
+    rpm: Annotated[float, Field(ge=0)] | None = None
+    speed_fraction: Annotated[float, Field(ge=0, le=2)] | None = None
     at_min: Annotated[float, Field(ge=0)] | None = None
     start_min: Annotated[float, Field(ge=0)] | None = None
     end_min: Annotated[float, Field(ge=0)] | None = None
@@ -362,12 +473,18 @@ class DeviationEvent(_Model):
         need = {"temperature-low": ("start_min", "end_min", "temperature_C"),
                 "hold-time": ("process_time_min",),
                 "come-up-time": ("come_up_time_min",),
-                "reading": ("at_min", "temperature_C")}[self.kind]
+                "reading": ("at_min", "temperature_C"),
+                "venting": ("vent_time_min", "vent_temperature_C"),
+                "water-level": ("start_min", "end_min", "level_above_top_mm"),
+                "circulation-loss": ("start_min", "end_min"),
+                "rotation": ("start_min", "end_min", "rpm"),
+                "reel-stop": ("start_min", "end_min"),
+                "reel-speed": ("start_min", "end_min", "speed_fraction")}[self.kind]
         missing = [k for k in need if getattr(self, k) is None]
         if missing:
             raise ValueError(f"event '{self.kind}' needs {', '.join(need)}; missing {', '.join(missing)}")
-        if self.kind == "temperature-low" and self.end_min <= self.start_min:
-            raise ValueError(f"event 'temperature-low': end_min {self.end_min} must be after start_min {self.start_min}")
+        if self.start_min is not None and self.end_min is not None and self.end_min <= self.start_min:
+            raise ValueError(f"event '{self.kind}': end_min {self.end_min} must be after start_min {self.start_min}")
         return self
 
 
@@ -396,6 +513,35 @@ class UncertaintySpec(_Model):
         0.5, description="Standard deviation of log10(spores per container) [-]")
 
 
+class Stream(_Model):
+    """The production stream of a continuous system: which entries the record covers.
+
+    Containers enter the shell from ``entry_start_min`` to ``entry_end_min`` (minutes on the
+    shell record's axis); ``first_entry`` gives the clock time of ``entry_start_min`` so entry
+    times can be named as clock times. Stops and speed changes are ``reel-stop`` and
+    ``reel-speed`` events.
+    """
+
+    entry_start_min: Annotated[float, Field(ge=0)]
+    entry_end_min: Annotated[float, Field(ge=0)]
+    first_entry: str | None = Field(None, description="Clock time of the first entry (ISO 8601)")
+
+    @model_validator(mode="after")
+    def _window(self) -> Stream:
+        if self.entry_end_min <= self.entry_start_min:
+            raise ValueError(f"entry_end_min {self.entry_end_min:g} must be after entry_start_min "
+                             f"{self.entry_start_min:g}")
+        if self.first_entry is not None:
+            from datetime import datetime
+
+            try:
+                datetime.fromisoformat(self.first_entry)
+            except ValueError:
+                raise ValueError(f"first_entry {self.first_entry!r} is not a clock time "
+                                 "(ISO 8601, e.g. 2026-12-01T06:00)") from None
+        return self
+
+
 class Deviation(_Model):
     """What happened to this lot."""
 
@@ -415,6 +561,7 @@ class Deviation(_Model):
     events: list[DeviationEvent] = Field(default_factory=list)
     critical_factor_readings: list[CriticalFactorReading] = Field(default_factory=list)
     uncertainty: UncertaintySpec | None = None
+    stream: Stream | None = Field(None, description="Continuous systems: the production stream")
     description: str = ""
 
 
@@ -435,6 +582,13 @@ class Case(_Model):
         if self.deviation.lot_size_containers > lot_max:
             raise ValueError(f"deviation.lot_size_containers {self.deviation.lot_size_containers} is above "
                              f"{lot_max}; expected the containers of one lot")
+        system = self.process.system
+        if self.deviation.stream is not None and (system is None or not system.continuous):
+            raise ValueError("deviation.stream applies to a continuous system (process.system kind "
+                             "'continuous-rotary' or 'hydrostatic')")
+        if system is not None and system.continuous and self.deviation.stream is None:
+            raise ValueError(f"a '{system.kind}' system needs deviation.stream (entry_start_min, "
+                             "entry_end_min): which containers the record covers")
         filed = {f.name.strip().lower() for f in self.process.critical_factors}
         for i, reading in enumerate(self.deviation.critical_factor_readings):
             if reading.name.strip().lower() not in filed:

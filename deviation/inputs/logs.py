@@ -88,6 +88,9 @@ class RetortProfile:
     recorded : bool
         True for readings taken from a recorder (a log); False for a history built from the
         filed process, which is exact between its points (no "lower reading between samples")
+    columns : dict or None
+        The retort system's own recorded columns (``water_level_above_top_mm``, ``rotation_rpm``,
+        ``reel_speed_fraction``), name to array, NaN where a row has no reading
 
     Notes
     -----
@@ -101,6 +104,7 @@ class RetortProfile:
     sha256: str | None = None
     indicating_C: np.ndarray | None = None
     recorded: bool = True
+    columns: dict | None = None  # other recorded columns (SYSTEM_COLUMNS), NaN where a row has none
 
     def __post_init__(self) -> None:
         time_min = np.array(self.time_min, dtype=float)
@@ -251,6 +255,20 @@ def _header_columns(
     time_name = "time_min" if "time_min" in found else "time"
     temperature_name = "temperature_C" if "temperature_C" in found else "temperature_F"
     return time_name, found[time_name], temperature_name, found[temperature_name]
+
+
+# Columns a retort system's recorder may carry beside the temperature (21 CFR 113.40: water level,
+# rotation and reel speed are critical factors recorded with the cycle).
+SYSTEM_COLUMNS = {
+    "water_level_above_top_mm": ("a water level above the top layer [mm]", -2000.0, 2000.0),
+    "rotation_rpm": ("a rotation speed [rpm]", 0.0, 100.0),
+    "reel_speed_fraction": ("the reel speed as a fraction of the filed speed [-]", 0.0, 2.0),
+}
+
+
+def _system_columns(header: list[str]) -> dict[str, int]:
+    names = [name.strip().lower() for name in header]
+    return {name: names.index(name) for name in SYSTEM_COLUMNS if name in names}
 
 
 def _indicating_column(header: list[str], line: int, source: str) -> tuple[str, int] | None:
@@ -462,6 +480,8 @@ def parse_log_text(
     needed = max(time_index, temperature_index) + 1
     unit = "°C" if temperature_name == "temperature_C" else "°F"
     indicating_values: list[float] = []
+    system = _system_columns(header) if kind == "retort" else {}
+    system_values: dict[str, list[float]] = {name: [] for name in system}
     expected_temperature = f"a temperature [{unit}]"
     line_numbers: list[int] = []
     time_texts: list[str] = []
@@ -498,6 +518,14 @@ def parse_log_text(
                 cell, line, indicating[0],
                 f"a temperature [{'°C' if indicating[0].endswith('_C') else '°F'}] or an empty cell",
                 source))
+        for name, index in system.items():
+            cell = fields[index].strip() if index < len(fields) else ""
+            words, low, high = SYSTEM_COLUMNS[name]
+            value = np.nan if not cell else _number(cell, line, name, f"{words} or an empty cell", source)
+            if not np.isnan(value) and not low <= value <= high:
+                raise RecordError(f"line {line}, column {name}: {value:g} is outside {low:g} to {high:g}; "
+                                  f"expected {words}", source=source)
+            system_values[name].append(value)
         line_numbers.append(line)
         time_texts.append(time_text)
 
@@ -512,6 +540,10 @@ def parse_log_text(
         )
         if kind == "retort":
             _within_reading_bounds(profile.temperature_C, values, unit, temperature_name, line_numbers, source)
+        if system_values:
+            from dataclasses import replace
+
+            profile = replace(profile, columns={k: np.array(v) for k, v in system_values.items()})
         if indicating is None:
             return profile
         return _with_indicating(profile, np.array(indicating_values), indicating[0], line_numbers,

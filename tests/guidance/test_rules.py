@@ -154,6 +154,22 @@ DEFAULT_RULE_CASES = {
         (["recorder-above-indicating"], dict(**DEV)),
         (["temperature-low"], dict(**DEV)),
     ),
+    "vent-schedule-not-met": (
+        (["vent-schedule-not-met"], dict(vent_study_on_file=False, **DEV)),
+        (["vent-schedule-not-met"], dict(vent_study_on_file=True, **DEV)),
+    ),
+    "vent-schedule-not-met-study-on-file": (
+        (["vent-schedule-not-met"], dict(vent_study_on_file=True, **DEV)),
+        (["vent-schedule-not-met"], dict(vent_study_on_file=False, **DEV)),
+    ),
+    "water-level-below-top-layer": (
+        (["water-level-below-top-layer"], dict(**DEV)),
+        (["water-level-low"], dict(**DEV)),
+    ),
+    "system-critical-factor": (
+        (["rotation-stopped"], dict(**DEV)),
+        (["temperature-low"], dict(**DEV)),
+    ),
     "uncertainty-below-target": (
         ([], dict(uncertainty_probability_below_target=0.06, uncertainty_F_p05_min=5.2)),
         ([], dict(uncertainty_probability_below_target=0.05, uncertainty_F_p05_min=6.1)),

@@ -26,7 +26,7 @@ EXPECTED_MESSAGES = {
     'reading_unknown_factor.toml': "deviation.critical_factor_readings[0]: 'fill weight' matches no filed critical factor (filed: headspace)",
     'syntax_error.toml': "TOML syntax error: Expected ']' at the end of a table declaration (at line 27, column 11)",
     'text_for_number.toml': "deviation.lot_size_containers: expected a whole number (found 'many')",
-    'unknown_event_kind.toml': "deviation.events[0].kind: expected 'temperature-low', 'hold-time', 'come-up-time' or 'reading' (found 'steam-gone')",
+    'unknown_event_kind.toml': "deviation.events[0].kind: expected 'temperature-low', 'hold-time', 'come-up-time', 'reading', 'venting', 'water-level', 'circulation-loss', 'rotation', 'reel-stop' or 'reel-speed' (found 'steam-gone')",
     'unknown_key.toml': 'process.comeup_minutes: unknown key (not part of the case contract)',
     'htc_without_conductivity.toml': "process.heat_penetration: surface_heat_transfer_W_m2K and thermal_conductivity_W_mK go together; give both or neither",
     'htc_with_heating_curve.toml': "process.heat_penetration: surface_heat_transfer_W_m2K needs model 'conduction' or 'finite-difference' (the heating-curve model's fh and jh already hold the surface's effect)",
