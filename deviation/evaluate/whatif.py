@@ -21,7 +21,7 @@ from deviation.evaluate.cold_spot import (
 from deviation.inputs import cycle
 from deviation.inputs import logs as prof
 from deviation.inputs.case import LoadedCase, Process
-from deviation.physics.spoilage import nonsterile_probability
+from deviation.physics.spoilage import log10_nonsterile_probability, nonsterile_probability
 from deviation.physics.heating.heating_curve import bounding_kernels
 from deviation.physics.uncertainty import lognormal_factors, sample_F, sample_F_bounding, summarise
 
@@ -30,7 +30,7 @@ _EXTENSION_LIMIT_MIN = 600.0
 # Age resolution of the bounding superposition for the Monte Carlo samples of the heating-curve
 # model (each sample runs on its own; 300 sampled ages instead of 2500 cut the time about five-fold
 # and, every rounding widening a window, only lower F, which the nominal ratio then cancels).
-_MC_MAX_AGES = 300
+_MC_MAX_AGES = 600
 # ... and for the extension's root search: every F it tries is only lower, so the minutes it
 # finds are never too few.
 _SEARCH_MAX_AGES = 600
@@ -222,9 +222,11 @@ def monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, model: ColdSpot
     # Spoilage at the organism's own Tref and z: F scaled as the headline's spoilage F is.
     ratio = spoilage[1] if spoilage else 1.0
     p = nonsterile_probability(F * ratio, micro.spoilage_D_min, spores)
+    log10_p = log10_nonsterile_probability(F * ratio, micro.spoilage_D_min, spores)
     out.update(summarise(F, np.asarray(p), target_F_min=process.target_F_min,
                          botulinum_D_min=micro.botulinum_D_min,
-                         F0_ratio=spoilage[0] if spoilage else 1.0))
+                         F0_ratio=spoilage[0] if spoilage else 1.0,
+                         log10_spoilage_probability=np.asarray(log10_p)))
     return out
 
 

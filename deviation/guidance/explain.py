@@ -3,6 +3,8 @@ with every reason and its basis) and the explanation of why each rule did or did
 
 from __future__ import annotations
 
+import math
+
 from typing import Any, Mapping, Sequence
 
 from pydantic import BaseModel
@@ -58,16 +60,21 @@ class RuleExplanation(BaseModel):
 
 
 class _Shown:
-    """A fact for ``str.format_map``: ``n/a`` when not computed, never an exception."""
+    """A fact for ``str.format_map``: ``n/a`` when not computed, never an exception; a
+    probability that underflowed to 0 is shown from its ``log10`` twin, never as 0."""
 
-    def __init__(self, value: Any) -> None:
+    def __init__(self, value: Any, log10: float | None = None) -> None:
         self.value = value
+        self.log10 = log10
 
     def __format__(self, spec: str) -> str:
         if _missing(self.value):
             return "n/a"
         if isinstance(self.value, bool):
             return "yes" if self.value else "no"
+        if self.log10 is not None and isinstance(self.value, float) and 0.0 <= self.value < 1e-300:
+            exponent = math.floor(self.log10)
+            return f"{10.0 ** (self.log10 - exponent):.2g}e{exponent}"
         try:
             return format(self.value, spec)
         except (TypeError, ValueError):
@@ -83,7 +90,7 @@ class _SafeFacts(dict):
 
 
 def _reason_mapping(facts: Mapping[str, Any], flags: Sequence[str]) -> _SafeFacts:
-    mapping = _SafeFacts({name: _Shown(value) for name, value in facts.items()})
+    mapping = _SafeFacts({name: _Shown(value, facts.get(f"log10_{name}")) for name, value in facts.items()})
     # The flags that are deviations of this cycle (not the information about the filed process).
     shown = [flag for flag in flags if flag not in INFORMATION_FLAG_CODES]
     mapping["deviation_flags"] = _Shown(", ".join(shown) if shown else "none")

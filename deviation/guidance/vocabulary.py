@@ -36,6 +36,10 @@ NUMERIC_METRICS: tuple[str, ...] = (
     "lot_nonsterile_probability",
     "uncertainty_probability_below_target",
     "uncertainty_F_p05_min",
+    "log10_spoilage_probability",
+    "log10_target_spoilage_probability",
+    "log10_lot_nonsterile_probability",
+    "log10_expected_nonsterile_containers",
 )
 """Numeric facts a condition may compare (units in the names)."""
 
@@ -88,6 +92,7 @@ FLAG_CODES: tuple[str, ...] = (
     "rotation-stopped",
     "reel-stop",
     "reel-speed-low",
+    "botulinum-not-shown",
 )
 """Flag codes the evaluation may raise; a rule naming any other code is a load-time error."""
 
@@ -99,6 +104,7 @@ INFORMATION_FLAG_CODES: frozenset[str] = frozenset({
     "jh-differs-from-theory",
     "parameter-not-used",
     "surface-heat-transfer-assumed",
+    "botulinum-not-shown",
 })
 """Flag codes about the filed process and its model, not about this cycle: they do not make
 ``deviation_found`` (the model's own doubts leave the lethality not fully established instead)."""

@@ -125,7 +125,8 @@ def lognormal_factors(rng: np.random.Generator, relative_sd: float, n: int) -> n
 
 
 def summarise(F_min: np.ndarray, spoilage_probability: np.ndarray, *, target_F_min: float,
-              botulinum_D_min: float, F0_ratio: float = 1.0) -> dict[str, float]:
+              botulinum_D_min: float, F0_ratio: float = 1.0,
+              log10_spoilage_probability: np.ndarray | None = None) -> dict[str, float]:
     """Percentiles and exceedance figures of a Monte Carlo run.
 
     ``F0_ratio``: F0 (Tref 121.1 °C, z 10 °C) over the process's own F for this cycle, so the
@@ -139,6 +140,9 @@ def summarise(F_min: np.ndarray, spoilage_probability: np.ndarray, *, target_F_m
         "probability_below_target": below,
         "probability_F_below_target": below,
         "spoilage_probability_p95": float(np.percentile(spoilage_probability, 95)),
+        # the percentile of the log10s: the same sample (log10 is monotone), never underflowing
+        "log10_spoilage_probability_p95": (float(np.percentile(log10_spoilage_probability, 95))
+                                           if log10_spoilage_probability is not None else None),
         "botulinum_log_reductions_p05": float(np.percentile(F_min, 5) * F0_ratio / botulinum_D_min),
     }
 
