@@ -14,7 +14,6 @@ from pathlib import Path
 
 from deviation.cli.common import actor_of, add_common_options, role_of
 from deviation.errors import DeviationError
-from deviation.records.replay import rule_set_from
 
 
 def _process(args, store):
@@ -37,7 +36,7 @@ def _process(args, store):
 class _Human:
     """Rich output: flag lines printed as they come, a live status line, the summary at the end."""
 
-    SYMBOL = {"flag": "⚠", "notice": "•", "record": "✎", "error": "✗"}
+    SYMBOL = {"flag": "⚠", "notice": "•", "record": "✎", "error": "✗", "skipped": "⚠"}
 
     def __init__(self, process, args) -> None:
         from rich.console import Console
@@ -79,6 +78,9 @@ class _Human:
                 f"(target {e['target_F_min']:g})  {ext_txt}")
 
     def __call__(self, e: dict) -> None:
+        from rich.markup import escape
+        from rich.text import Text
+
         kind = e["type"]
         c = self.console
         if kind == "update":
@@ -94,24 +96,36 @@ class _Human:
             word = "DEVIATION" if deviation else "NOTE"
             style = "bold red" if deviation else "bold green"
             c.print(f"[{style}]{self.SYMBOL['flag']} {word}[/{style}] {e['time_min']:7.2f} min  "
-                    f"[bold]{e['code']}[/bold]: {e['message']}")
-        elif kind in ("notice", "record", "error"):
-            style = {"notice": "yellow", "record": "cyan", "error": "bold red"}[kind]
-            c.print(f"[{style}]{self.SYMBOL[kind]} {e['message']}[/{style}]")
+                    f"[bold]{escape(str(e['code']))}[/bold]: {escape(str(e['message']))}")
+        elif kind in ("notice", "record", "error", "skipped"):
+            style = {"notice": "yellow", "record": "cyan", "error": "bold red", "skipped": "bold yellow"}[kind]
+            word = "BAD ROW " if kind == "skipped" else ""
+            c.print(Text.assemble((f"{self.SYMBOL[kind]} {word}", style), (str(e["message"]), style)))
         elif kind == "final":
             self.stop()
             self.final(e)
 
     def final(self, e: dict) -> None:
+        from rich.markup import escape
+
         from deviation.evaluate import CAUTION
 
         c = self.console
-        c.print(f"[bold]Cycle {e['reason']}[/bold] after {e['rows']} readings.")
+        c.print(f"[bold]Cycle {escape(str(e['reason']))}[/bold] after {e['rows']} readings.")
+        if e.get("skipped"):
+            c.print(f"[bold yellow]⚠ {len(e['skipped'])} bad row(s) skipped[/bold yellow] (lines "
+                    + ", ".join(str(s["line"]) for s in e["skipped"]) + ")")
         if "delivered_F_min" not in e:
             c.print(e.get("error", "nothing evaluated"))
         else:
             g = e.get("guidance") or {}
-            c.print(f"  delivered F0 [bold]{e['delivered_F_min']:.2f} min[/bold] (target {e['target_F_min']:g} min, "
+            if (e.get("cycle") or {}).get("running"):
+                proj = e.get("projected_F_min")
+                c.print("  the record stops before the cycle ended: no figure is delivered yet; "
+                        + (f"projected F0 {proj:.2f} min if the rest ran as filed" if isinstance(proj, (int, float))
+                           else "no projection"))
+            label = "F0 so far" if (e.get("cycle") or {}).get("running") else "delivered F0"
+            c.print(f"  {label} [bold]{e['delivered_F_min']:.2f} min[/bold] (target {e['target_F_min']:g} min, "
                     f"scheduled {e['scheduled_F_min']:.2f} min); botulinum log reductions "
                     f"{e['botulinum_log_reductions']:.1f} (required {e['botulinum_log_reductions_required']:g})")
             codes = [f["code"] for f in e.get("flags", [])]
@@ -126,6 +140,7 @@ class _Human:
 
 def _cmd_watch(args) -> int:
     from deviation.live.watch import LogFollower, Watch, event_json
+    from deviation.records.replay import rule_set_from
     from deviation.records.store import open_store
 
     actor, role = actor_of(args), (role_of(args) or "operator")

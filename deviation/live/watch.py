@@ -8,6 +8,8 @@ cycle as rows arrive and emits events (plain dicts, one JSON object each):
 - ``{"type": "update", "time_min", "delivered_F_min", "projected_F_min",
   "extension_to_target_min", ...}`` after each evaluation;
 - ``{"type": "final", "reason", ...the evaluation keys...}`` when the cycle ends;
+- ``{"type": "skipped", "line", "row_text", "message"}`` for a bad row, reported and left out
+  (the watch goes on; a gap it leaves is flagged as any gap);
 - ``{"type": "notice", "message"}`` and ``{"type": "record", "record_id", "action"}`` on the way.
 
 No physics here: each reading is judged with :func:`deviation.inputs.logs.analyse_cycle` on the
@@ -59,6 +61,16 @@ from deviation.errors import DeviationError, RecordError
 #: (common practice) [°C].
 COOLING_DONE_C = 100.0
 
+#: A reading at or below this, or above ROW_MAX_C, is no retort reading: the row is reported and
+#: skipped [°C] (the floor screen's bounds for a typed reading, deviation.tui.entry, are the same).
+ROW_MIN_C = 0.0
+ROW_MAX_C = 150.0
+#: The longest record the watch follows, from its first row [min]; a later time is a glitch of the
+#: recorder's clock (and would make the evaluation's arrays absurdly long).
+MAX_RECORD_MIN = 24 * 60.0
+#: More bad rows than this in one read stop the watch: the file is not a retort record.
+MAX_SKIPPED_PER_READ = 50
+
 # Flags that hold for the whole cycle once seen: one per cycle.
 _ONCE = ("long-come-up", "low-initial-temperature", "short-hold", "process-temperature-not-reached",
          "record-ends-before-cooling", "scheduled-F-below-target", "alternate-process-met")
@@ -99,11 +111,22 @@ class LogFollower:
     lines_read: int = 0
     _fd: int | None = field(default=None, repr=False)
     _ident: tuple[int, int] | None = field(default=None, repr=False)
-    _tail: bytes = field(default=b"", repr=False)
     _size: int = field(default=0, repr=False)
+    # What was read, to catch a row rewritten in place: the SHA-256 of each whole block of
+    # BLOCK_BYTES read, the bytes read since the last whole block, and the line count at each
+    # block's start (to name where a change is).
+    _blocks: list = field(default_factory=list, repr=False)
+    _block_lines: list = field(default_factory=list, repr=False)
+    _partial: bytes = field(default=b"", repr=False)
+    _partial_lines: int = field(default=0, repr=False)  # lines before ``_partial``
+    _rotate: int = field(default=0, repr=False)
 
-    # Bytes before the offset compared at each read, to catch a file rewritten in place.
-    _TAIL_BYTES = 64
+    #: Bytes per checked block [bytes].
+    BLOCK_BYTES = 64 * 1024
+    #: Up to this many bytes read, every byte already read is compared at each read; past it, the
+    #: last block, the bytes after it and one earlier block in turn (each read costs at most
+    #: three blocks, and every block is checked every few hundred reads) [bytes].
+    FULL_CHECK_BYTES = 8 * 1024 * 1024
 
     def __post_init__(self) -> None:
         self.path = Path(self.path)
@@ -156,11 +179,48 @@ class LogFollower:
             raise LogTruncated(f"the retort log shrank from {self.offset} to {size} bytes while being "
                                f"watched (truncated); {self._stopped()}; a retort record only grows: "
                                "keep the recorder's file whole", source=str(self.path))
-        if self._tail and os.pread(self._fd, len(self._tail), self.offset - len(self._tail)) != self._tail:
-            raise LogTruncated(f"bytes of the retort log already read were changed (rewritten in place) "
-                               f"while being watched; {self._stopped()}; a retort record only grows",
+        changed = self._changed_line()
+        if changed is not None:
+            raise LogTruncated(f"bytes of the retort log already read were changed (rewritten in place), "
+                               f"at or after line {changed}, while being watched; {self._stopped()}; a "
+                               "retort record only grows: an earlier row must never be rewritten",
                                source=str(self.path))
         return size
+
+    def _changed_line(self) -> int | None:
+        """The first line (1-based) at or after which bytes already read differ, or None."""
+        n = len(self._blocks)
+        block = self.BLOCK_BYTES
+        if self._partial:
+            now = os.pread(self._fd, len(self._partial), n * block)
+            if now != self._partial:
+                same = next((i for i, (a, b) in enumerate(zip(now, self._partial)) if a != b),
+                            min(len(now), len(self._partial)))
+                return self._partial_lines + self._partial[:same].count(b"\n") + 1
+        if n == 0:
+            return None
+        if self.offset <= self.FULL_CHECK_BYTES:
+            check = range(n)
+        else:
+            self._rotate = (self._rotate + 1) % n
+            check = sorted({n - 1, self._rotate})
+        for i in check:
+            if hashlib.sha256(os.pread(self._fd, block, i * block)).digest() != self._blocks[i]:
+                return self._block_lines[i] + 1
+        return None
+
+    def _keep(self, chunk: bytes) -> None:
+        """Remember ``chunk`` (just read) for the check of bytes already read."""
+        block = self.BLOCK_BYTES
+        data = self._partial + chunk
+        lines = self._partial_lines  # lines before the bytes not yet in a whole block
+        while len(data) >= block:
+            self._block_lines.append(lines)
+            self._blocks.append(hashlib.sha256(data[:block]).digest())
+            lines += data[:block].count(b"\n")
+            data = data[block:]
+        self._partial = data
+        self._partial_lines = lines
 
     def read_new(self, *, final: bool = False) -> list[str]:
         """The complete lines added since the last call (without their line ends).
@@ -194,7 +254,7 @@ class LogFollower:
         lines = [ln[:-1] if ln.endswith("\r") else ln for ln in lines]
         self.offset += len(chunk)
         self.lines_read += len(lines)
-        self._tail = (self._tail + chunk)[-self._TAIL_BYTES:]
+        self._keep(chunk)
         return lines
 
 
@@ -273,6 +333,9 @@ class Watch:
         self.cooling_threshold_C = min(cooling_done_C, process.process_temperature_C - 10.0)
         self.cooling_done_C = cooling_done_C
         self._lines: list[str] = []
+        self._line_numbers: list[int] = []  # file line number of each kept line
+        self._file_lines = 0  # lines of the file read so far
+        self.skipped: list[dict] = []  # bad rows reported and left out
         self._rows_done = 0  # data rows already judged
         self._seen: set = set()
         self._drops: list[_LiveDrop] = []
@@ -326,7 +389,9 @@ class Watch:
     def snapshot(self) -> dict:
         snap = self.loaded().snapshot()
         snap["watch"] = {"rows": self._rows_done, "complete": self.final is not None,
-                         "initial_temperature_assumed": self.initial_temperature_assumed}
+                         "initial_temperature_assumed": self.initial_temperature_assumed,
+                         "skipped": [{"line": s["line"], "text": s["text"], "why": s["why"]}
+                                     for s in self.skipped]}
         if self.process_ref:
             snap["process_ref"] = dict(self.process_ref)
         return snap
@@ -422,11 +487,21 @@ class Watch:
     def feed(self, lines: list[str], *, final: bool = False) -> list[dict]:
         """Take new complete lines of the log; judge each new reading, then evaluate once.
 
-        Returns the events made (also passed to ``on_event`` as they are made).
+        A bad row (not a number, a time not after the one before, a reading no retort gives, a
+        time past :data:`MAX_RECORD_MIN`) is reported (a ``skipped`` event) and left out; the
+        watch goes on, and a gap it leaves is flagged as any gap. Returns the events made (also
+        passed to ``on_event`` as they are made).
         """
         start = len(self.events)
-        self._lines.extend(lines)
-        profile = self._parse()
+        first_new = len(self._lines)
+        for line in lines:
+            self._file_lines += 1
+            late = self._late(line)
+            self._lines.append(line)
+            self._line_numbers.append(self._file_lines)
+            if late is not None:  # before the whole parse: a glitched time would put every later row out of order
+                self._skip(len(self._lines) - 1, late)
+        profile = self._parse_skipping(first_new=first_new)
         if profile is None:
             return self.events[start:]
         self.profile = profile
@@ -575,13 +650,13 @@ class Watch:
         if self.final is not None:
             return self.final
         self.final = {"reason": reason}  # marks the snapshot complete
-        if self._parse_ready(lines or []):
-            self.feed(lines or [], final=True)
+        self.feed(lines or [], final=True)
         ev = self.evaluation
         out = {"type": "final", "reason": reason, "rows": self._rows_done, "record_id": self.record_id,
                "process_ref": self.process_ref,
                "initial_temperature_assumed": self.initial_temperature_assumed,
-               "store_error": self.store_error}
+               "store_error": self.store_error,
+               "skipped": [{"line": s["line"], "why": s["why"]} for s in self.skipped]}
         if ev is not None:
             out.update(ev.model_dump(mode="json"))
         else:
@@ -590,11 +665,130 @@ class Watch:
         self.final = out
         return self._emit(out)
 
-    def _parse_ready(self, lines: list[str]) -> bool:
-        self._lines.extend(lines)
-        ok = self._parse() is not None
-        del self._lines[len(self._lines) - len(lines):]
-        return ok
+    # -- bad rows --------------------------------------------------------------------------
+
+    def _parse_skipping(self, first_new: int):
+        """The record so far with each bad new row reported and left out (see :meth:`feed`)."""
+        for _ in range(MAX_SKIPPED_PER_READ + 1):
+            try:
+                profile = self._parse()
+            except RecordError as exc:
+                k = _error_line(exc)
+                if k is None or k - 1 < first_new or k - 1 == self._header_index():
+                    raise  # the header, or rows already judged: not a bad row to skip
+                self._skip(k - 1, exc.message.split(": ", 1)[-1] if exc.message.startswith("line ")
+                           else exc.message)
+                continue
+            if profile is None:
+                return None
+            bad = self._out_of_bounds(profile)
+            if bad is None:
+                return profile
+            self._skip(*bad)
+        raise RecordError(f"more than {MAX_SKIPPED_PER_READ} bad rows in one read; the watch stopped "
+                          f"after line {self._file_lines}: check the recorder's output", source=self.source)
+
+    def _late(self, line: str) -> str | None:
+        """Why a new row's ``time_min`` is past :data:`MAX_RECORD_MIN` from the first row, or None
+        (rows of an ISO ``time`` column are checked after the parse)."""
+        import csv
+
+        header = self._header_index()
+        if header is None or not line.strip() or line.strip().startswith("#"):
+            return None
+        names = [n.strip().lower() for n in next(csv.reader([self._lines[header]]), [])]
+        if "time_min" not in names:
+            return None
+        fields = next(csv.reader([line]), [])
+        i = names.index("time_min")
+        try:
+            value = float(fields[i])
+        except (IndexError, ValueError):
+            return None  # the parse names what is wrong with it
+        first = self.profile_first_min
+        if first is None:
+            return None
+        if value - first > MAX_RECORD_MIN:
+            return (f"time {value:g} min is past the longest record the watch follows ({MAX_RECORD_MIN:g} "
+                    "min from the first row): a glitch of the recorder's clock?")
+        return None
+
+    @property
+    def profile_first_min(self) -> float | None:
+        """``time_min`` of the first reading kept (as written in the file), or None."""
+        import csv
+
+        header = self._header_index()
+        if header is None:
+            return None
+        names = [n.strip().lower() for n in next(csv.reader([self._lines[header]]), [])]
+        if "time_min" not in names:
+            return None
+        for i in self._data_indices():
+            try:
+                return float(next(csv.reader([self._lines[i]]))[names.index("time_min")])
+            except (IndexError, ValueError):
+                continue
+        return None
+
+    def _header_index(self) -> int | None:
+        return next((i for i, ln in enumerate(self._lines) if ln.strip() and not ln.strip().startswith("#")),
+                    None)
+
+    def _data_indices(self) -> list[int]:
+        """Index in ``_lines`` of each reading the parsed profile holds, in order."""
+        import csv
+
+        header = self._header_index()
+        out = []
+        for i, ln in enumerate(self._lines):
+            if header is None or i <= header or not ln.strip() or ln.strip().startswith("#"):
+                continue
+            fields = next(csv.reader([ln]), [])
+            if any(f.strip() for f in fields):
+                out.append(i)
+        return out
+
+    def _out_of_bounds(self, profile) -> tuple[int, str] | None:
+        """The first new reading outside what a retort record can hold: (index in ``_lines``, why)."""
+        t, T = profile.time_min, profile.temperature_C
+        first = self._rows_done
+        if t.size <= first:
+            return None
+        late = t[first:] > MAX_RECORD_MIN
+        cold = T[first:] <= ROW_MIN_C
+        hot = T[first:] > ROW_MAX_C
+        bad = np.flatnonzero(late | cold | hot)
+        if not bad.size:
+            return None
+        i = first + int(bad[0])
+        indices = self._data_indices()
+        if i >= len(indices):
+            return None
+        if late[i - first]:
+            why = (f"time {t[i]:g} min from the first row is past the longest record the watch follows "
+                   f"({MAX_RECORD_MIN:g} min): a glitch of the recorder's clock?")
+        elif hot[i - first]:
+            as_C = (T[i] - 32.0) * 5.0 / 9.0
+            hint = (f"; {T[i]:g} looks like °F (= {as_C:.1f} °C)"
+                    if self.process.process_temperature_C - 40.0 <= as_C <= ROW_MAX_C else "")
+            why = f"{T[i]:g} °C is above {ROW_MAX_C:g} °C, which no retort reaches{hint}"
+        else:
+            why = f"{T[i]:g} °C is not a retort reading (above {ROW_MIN_C:g} °C expected): a sensor fault?"
+        return indices[i], why
+
+    def _skip(self, index: int, why: str) -> None:
+        """Leave out line ``index`` of ``_lines`` and say so (a ``skipped`` event, a note)."""
+        line_no = self._line_numbers[index]
+        text = self._lines[index]
+        shown = text if len(text) <= 60 else text[:60] + "…"
+        del self._lines[index]
+        del self._line_numbers[index]
+        message = f"line {line_no} ({shown!r}) skipped: {why}"
+        self.skipped.append({"line": line_no, "text": text, "why": why})
+        self._emit({"type": "skipped", "time_min": None, "line": line_no, "row_text": shown,
+                    "message": message})
+        self.note(f"watch: {message}")
 
     # -- the loop --------------------------------------------------------------------------
 
@@ -633,9 +827,33 @@ class Watch:
             raise
 
 
+def _error_line(exc: RecordError) -> int | None:
+    """The line a retort-log reader's message names first (the row at fault), or None."""
+    import re
+
+    m = re.search(r"\bline (\d+)\b", exc.message)
+    return int(m.group(1)) if m else None
+
+
+def check_header(lines: list[str], *, source: str) -> None:
+    """Refuse a log whose header (the first line that is not blank or a ``#`` comment) names no
+    time or temperature column; the rows are not looked at (the watch skips a bad one)."""
+    from deviation.inputs.logs import parse_log_text
+
+    upto = next((i for i, ln in enumerate(lines) if ln.strip() and not ln.strip().startswith("#")), None)
+    if upto is None:
+        return
+    try:
+        parse_log_text("".join(ln + "\n" for ln in lines[:upto + 1]), source=source)
+    except RecordError as exc:
+        if "but no readings" not in exc.message:
+            raise
+
+
 def event_json(event: dict) -> str:
     """One event as a JSON line (no NaN)."""
     return json.dumps(event, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
 
 
-__all__ = ["LogFollower", "Watch", "LogChanged", "LogTruncated", "LogRotated", "COOLING_DONE_C", "event_json"]
+__all__ = ["LogFollower", "Watch", "LogChanged", "LogTruncated", "LogRotated", "COOLING_DONE_C", "event_json",
+           "check_header", "ROW_MIN_C", "ROW_MAX_C", "MAX_RECORD_MIN", "MAX_SKIPPED_PER_READ"]

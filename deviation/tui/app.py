@@ -7,9 +7,9 @@ from pathlib import Path
 from typing import Callable
 
 from textual.app import App
-from textual.binding import Binding
 
 from deviation.tui.context import TuiContext
+from deviation.tui.keys import APP_KEYS, bindings
 from deviation.tui.screens.audit import AuditScreen
 from deviation.tui.screens.dialogs import Identity, IdentityDialog
 from deviation.tui.screens.floor import FloorScreen
@@ -26,14 +26,9 @@ class DeviationApp(App):
     HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (120, "-wide")]
     MODES = {"floor": FloorScreen, "holds": HoldsScreen, "audit": AuditScreen}
     DEFAULT_MODE = "floor"
-    BINDINGS = [
-        Binding("f1", "help", "Help", priority=True),
-        Binding("f2", "switch_mode('floor')", "Floor", priority=True),
-        Binding("f3", "switch_mode('holds')", "Holds", priority=True),
-        Binding("f4", "switch_mode('audit')", "Audit", priority=True),
-        Binding("f9", "identity", "Who", show=False, priority=True),
-        Binding("ctrl+q", "quit", "Quit", priority=True),
-    ]
+    # From the one key map. Tab and Shift+Tab are priority bindings: focus moves the moment the
+    # key is read, so keys typed in one burst (a barcode scanner) land field by field.
+    BINDINGS = bindings(APP_KEYS)
 
     def __init__(self, ctx: TuiContext) -> None:
         super().__init__()

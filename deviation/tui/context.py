@@ -5,7 +5,7 @@ from __future__ import annotations
 import getpass
 import os
 from dataclasses import dataclass, field
-from datetime import datetime
+from datetime import datetime, timezone
 from pathlib import Path
 from typing import Callable
 
@@ -35,7 +35,19 @@ class TuiContext:
         """The floor-entry draft of this actor (one per person at the terminal)."""
         return f"tui.floor.{self.actor}"
 
+    def now_text(self) -> str:
+        """The clock as the floor reads it, local time beside UTC (``08:50 local · 07:50 UTC``);
+        the store records UTC."""
+        return clock_text(self.clock())
+
     @property
     def store_name(self) -> str:
         name = str(getattr(self.store, "name", "store"))
         return Path(name).name if "://" not in name else name
+
+
+def clock_text(now: datetime) -> str:
+    """``08:50 local · 07:50 UTC`` (a naive time is the terminal's local time)."""
+    local = now.astimezone() if now.tzinfo is not None else now
+    utc = now.astimezone(timezone.utc)
+    return f"{local:%H:%M} local · {utc:%H:%M} UTC"

@@ -42,11 +42,11 @@ def open_followed_log(path_text: str) -> FollowStart:
     Raises
     ------
     RecordError
-        The file is missing, a folder, unreadable, has no header yet, a bad header or a bad row
-        (the retort-log reader's messages).
+        The file is missing, a folder, unreadable, has no header yet or a bad header (the
+        retort-log reader's messages). A bad data row is not refused here: the watch reports
+        and skips it, and goes on.
     """
-    from deviation.inputs.logs import parse_log_text
-    from deviation.live.watch import LogFollower
+    from deviation.live.watch import LogFollower, check_header
 
     text = path_text.strip()
     if not text:
@@ -62,12 +62,7 @@ def open_followed_log(path_text: str) -> FollowStart:
             raise RecordError("no header line yet: the file must start with a header naming time_min and "
                               "temperature_C (or temperature_F); follow it once the recorder has written it",
                               source=str(path))
-        try:
-            parse_log_text("".join(ln + "\n" for ln in lines), source=str(path))
-        except RecordError as exc:
-            # A header with fewer than 2 readings is a record just started: what we follow.
-            if "expected at least 2 rows" not in exc.message:
-                raise
+        check_header(lines, source=str(path))  # a bad row is the watch's to report and skip
     except DeviationError:
         follower.close()
         raise
@@ -95,6 +90,7 @@ class FollowSession:
     last_min: float | None = None
     phase: str = "waiting"
     flags: list[dict] = field(default_factory=list)
+    skipped: list[dict] = field(default_factory=list)  # bad rows reported and skipped
     active: bool = True
     ended: str | None = None  # why following ended
 
@@ -105,6 +101,8 @@ class FollowSession:
         if self.flags:
             codes = list(dict.fromkeys(f["code"] for f in self.flags))
             flags = f" · ⚑ {len(self.flags)} flag{'s' if len(self.flags) > 1 else ''}: {', '.join(codes)}"
+        if self.skipped:
+            flags += f" · ⚠ {len(self.skipped)} bad row{'s' if len(self.skipped) > 1 else ''} skipped"
         last = f"last at {self.last_min:.1f} min" if self.last_min is not None else "waiting for readings"
         if self.active:
             return f"◉ following {name}: {self.rows} rows, {last} ({self.phase}){flags} · Ctrl+F stops"

@@ -299,3 +299,110 @@ def test_cli_watch_human_output_has_flags_and_caution(tmp_path, capsys):
     assert "⚠ DEVIATION" in out and "temperature-low" in out and "record-gap" in out
     assert "F0 so far" in out and "projected" in out
     assert "process authority decides" in out.lower()
+
+
+# -- issue 13: a bad row is reported and skipped; a rewrite anywhere before is caught ----------
+
+
+def test_a_bad_row_is_reported_and_skipped_and_the_watch_goes_on(peas):
+    # Defect: one bad recorder row (40.00,abc) stopped following for good.
+    events = []
+    watch = Watch(peas, lot="L", retort_id="R2", initial_temperature_C=55.0, source="R2.csv",
+                  on_event=events.append)
+    good = lines()
+    bad_at = len(HEADER) + 20  # file line of the bad row (1-based): after 19 readings
+    feed = good[:bad_at - 1] + ["9.50,abc"] + good[bad_at - 1:]
+    for line in feed:
+        watch.feed([line])
+    skipped = [e for e in events if e["type"] == "skipped"]
+    assert [e["line"] for e in skipped] == [bad_at]
+    assert skipped[0]["message"].startswith(f"line {bad_at} ('9.50,abc') skipped: ")
+    assert "'abc' is not a number" in skipped[0]["message"]
+    final = watch.finish("end of file")
+    assert final["rows"] == len(rows()) and final["skipped"] == [{"line": bad_at, "why": skipped[0]["message"]
+                                                                    .split("skipped: ", 1)[1]}]
+    assert "delivered_F_min" in final  # evaluated, the good rows all in
+    assert watch.snapshot()["watch"]["skipped"][0]["text"] == "9.50,abc"
+
+
+def test_a_skipped_row_that_leaves_a_gap_is_flagged_as_a_gap(peas):
+    events = []
+    watch = Watch(peas, lot="L", retort_id="R2", initial_temperature_C=55.0, source="R2.csv",
+                  on_event=events.append)
+    good = [ln for ln in lines() if not ln.startswith("#")]
+    # Rows 11.0 to 14.0 min come garbled: the record has a 3.5-min hole over the 2-min limit.
+    garbled = [ln if not 11.0 <= float(ln.split(",")[0] if ln[0].isdigit() else -1) <= 14.0
+               else ln.replace(",", ",x") for ln in good]
+    watch.feed(garbled)
+    assert len([e for e in events if e["type"] == "skipped"]) == 7
+    assert any(e["type"] == "flag" and e["code"] == "record-gap" and e["time_min"] == 14.5 for e in events)
+
+
+@pytest.mark.parametrize("row, words", [
+    ("30.5,245", "values look like °F (highest 245 at line 59"),
+    ("30.5,155", "highest 155 at line 59"),
+    ("30.5,-10", "-10 °C is not a retort reading"),
+    ("30.5,0", "0 °C is not a retort reading"),
+    ("99999999.00,20.00", "past the longest record the watch follows (1440 min from the first row)"),
+    ("30.5", "1 field(s) found"),
+    ("29.0,118", "earlier than"),
+])
+def test_rows_no_retort_gives_are_skipped(peas, row, words):
+    events = []
+    watch = Watch(peas, lot="L", retort_id="R2", initial_temperature_C=55.0, source="R2.csv",
+                  on_event=events.append)
+    good = [ln for ln in lines() if ln[:1].isdigit() and float(ln.split(",")[0]) <= 30.0]
+    watch.feed(HEADER + good)
+    watch.feed([row, "31.00,118.60"])
+    skipped = [e for e in events if e["type"] == "skipped"]
+    assert len(skipped) == 1 and words in skipped[0]["message"], skipped
+    assert watch.profile.time_min[-1] == pytest.approx(31.0)
+
+
+def test_cli_watch_evaluates_the_good_rows_around_a_bad_one(tmp_path, capsys):
+    # Defect: `deviation watch` on a file with one bad row exited 2 without evaluating the rest.
+    log = tmp_path / "R2.csv"
+    good = lines()
+    log.write_text("\n".join(good[:30] + ["14.20,abc"] + good[30:]) + "\n")
+    code = main(["watch", str(log), "--process", str(PEAS), "--lot", "PEA-9", "--retort", "R2",
+                 "--initial-temperature-C", "55", "--until-end", "--idle-s", "0.1", "--poll-s", "0.01",
+                 "--no-record", "--json"])
+    events = [json.loads(line) for line in capsys.readouterr().out.splitlines()]
+    assert code == 0
+    assert [e["line"] for e in events if e["type"] == "skipped"] == [31]
+    assert events[-1]["type"] == "final" and events[-1]["rows"] == len(rows())
+    code = main(["watch", str(log), "--process", str(PEAS), "--lot", "PEA-9", "--retort", "R2",
+                 "--initial-temperature-C", "55", "--until-end", "--idle-s", "0.1", "--poll-s", "0.01",
+                 "--no-record"])
+    out = capsys.readouterr().out
+    assert code == 0 and "⚠ BAD ROW line 31 ('14.20,abc') skipped" in out and "1 bad row(s) skipped" in out
+
+
+def test_a_row_rewritten_far_back_is_caught(tmp_path):
+    # Defect: only the last 64 bytes before the offset were compared.
+    log = tmp_path / "R1.csv"
+    log.write_text("\n".join(lines()) + "\n")
+    with LogFollower(log) as f:
+        f.read_new()
+        text = log.read_bytes()
+        at = text.index(b"\n5.00,") + 1  # a reading near the top, thousands of bytes back
+        with open(log, "r+b") as fh:  # same inode and size: one digit changed in place
+            fh.seek(at + len("5.00,"))
+            fh.write(b"9")
+        with pytest.raises(LogTruncated, match=r"rewritten in place\), at or after line 13,"):
+            f.read_new()
+
+
+def test_a_rewrite_is_caught_past_the_whole_block_check(tmp_path, monkeypatch):
+    monkeypatch.setattr(LogFollower, "BLOCK_BYTES", 64)
+    monkeypatch.setattr(LogFollower, "FULL_CHECK_BYTES", 256)
+    log = tmp_path / "R1.csv"
+    log.write_text("\n".join(lines()) + "\n")
+    with LogFollower(log) as f:
+        f.read_new()
+        with open(log, "r+b") as fh:
+            fh.seek(100)
+            fh.write(b"#")
+        with pytest.raises(LogTruncated):  # caught within one pass over the blocks
+            for _ in range(len(f._blocks) + 1):
+                f.read_new()

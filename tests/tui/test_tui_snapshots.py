@@ -52,6 +52,39 @@ async def enter_drop(pilot) -> None:
     await pilot.pause()
 
 
+async def choose_chili(pilot) -> None:
+    s = pilot.app.screen
+    s.query_one("#process", Select).value = next(k for k, p in s.processes.items() if p.id == "OH-CHL-87x115")
+    for name, value in (("lot", "CHL-261120-S"), ("retort", "R3"), ("lot_size", "4800"),
+                        ("initial_temperature", "48"), ("cycle_start", "08:00"), ("plant", "Osterby Hollow"),
+                        ("shift", "B")):
+        s.query_one(f"#{name}", Input).value = value
+    await pilot.pause()
+    await pilot.app.workers.wait_for_complete()
+    await pilot.pause(0.1)
+
+
+def test_floor_nothing_entered_80x24(snap_compare, app_factory):
+    # Before the first reading: "nothing entered yet", never "no deviation".
+    assert snap_compare(app_factory(), terminal_size=(80, 24), run_before=choose_chili)
+
+
+def test_floor_running_refused_reading_80x24(snap_compare, app_factory):
+    async def setup(pilot):
+        await choose_chili(pilot)
+        s = pilot.app.screen
+        s.query_one("#reading", Input).value = "116"
+        await pilot.press("ctrl+l")  # low now (50 min): the cycle still runs, figures projected
+        await pilot.pause()
+        await pilot.app.workers.wait_for_complete()
+        await pilot.pause(0.1)
+        s.query_one("#reading", Input).value = "245"
+        await pilot.press("ctrl+l")  # a °F reading: refused in place with the value in °C
+        await pilot.pause()
+
+    assert snap_compare(app_factory(), terminal_size=(80, 24), run_before=setup)
+
+
 def test_floor_entry_80x24(snap_compare, app_factory):
     # The drop entered: guidance shows the hold, the results the extra minutes.
     assert snap_compare(app_factory(), terminal_size=(80, 24), run_before=enter_drop)
@@ -87,3 +120,13 @@ def test_audit_replay_80x24(snap_compare, app_factory):
 
 def test_help_80x24(snap_compare, app_factory):
     assert snap_compare(app_factory(), terminal_size=(80, 24), press=["f1"])
+
+
+def test_floor_entry_curves_wide_160x48(snap_compare, app_factory):
+    # Wide, after Ctrl+G: the curves in full (shaded drop, legend above each plot).
+    async def setup(pilot):
+        await enter_drop(pilot)
+        await pilot.press("ctrl+g")
+        await pilot.pause(0.1)
+
+    assert snap_compare(app_factory(), terminal_size=(160, 48), run_before=setup)

@@ -1,4 +1,4 @@
-"""Help: the keys of every screen and the path of a deviation from entry to decision."""
+"""Help: every key and symbol, made from the one key map (:mod:`deviation.tui.keys`)."""
 
 from __future__ import annotations
 
@@ -9,56 +9,28 @@ from textual.containers import VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
-from deviation.evaluate import CAUTION
+from deviation.tui.keys import help_text
+from deviation.tui.screens.holds import STATE_LOOK
 
-HELP = f"""\
-deviation · terminal UI                          Esc or F1 closes this help
-
-Screens (function keys work everywhere)
-  F2  Floor entry   the operator enters a deviation while the cycle runs
-  F3  Holds board   supervisor holds/releases; process authority decides
-  F4  Audit         replay, stored against recomputed, verify the chains
-  F9  Who is at the terminal (name, role: recorded, not authenticated)
-  Ctrl+Q quit (the floor entry is kept as a draft in the store)
-
-Floor entry
-  Tab / Shift+Tab  move between fields; Enter in "Reading" = low now
-  Ctrl+L  temperature low now (the reading typed in "Reading °C")
-  Ctrl+B  back at process temperature now
-  Ctrl+T  typed entry: "At" (min from steam on, or HH:MM) + "Reading"
-  Ctrl+O  import a retort log (CSV)      Ctrl+R  undo the last reading
-  Ctrl+F  follow a retort log the recorder is still writing: results
-          refresh as rows arrive, ⚑ toast on each new flag; Ctrl+F
-          again stops (Ctrl+S saves the record with the rows so far)
-  Ctrl+S  save the record (operator)     Ctrl+N  new entry
-  Ctrl+G  curves or guidance (narrow terminals show one at a time)
-  "now" is the clock minus "Steam on"; an open low interval counts
-  until now.
-
-Holds board and record
-  Enter open · H hold · R release · D disposition · N note
-  S sort · A all or open only · / filter
-  Esc back from a record; Y replays the record in the audit screen
-  E (record) re-evaluate the latest snapshot with the current engine
-    and rules (operator, supervisor, process authority)
-
-Audit
-  Enter replay · V verify every hash chain · X export the report
-
-Symbols: ✓ meets / reproduced  ✗ below / differs  ! hold  ⚑ flag
-         ▼ low  ▲ back  ○ entered  ◐ evaluated  ⏸ held  ▶ released
-         ⚖ decided
-
-{CAUTION}
-"""
+HELP = help_text(STATE_LOOK)
 
 
 class HelpScreen(ModalScreen[None]):
+    """The keys of every screen and the symbols, scrolling; fits 80x24."""
+
     BINDINGS = [Binding("escape", "close", "Close"), Binding("f1", "close", "Close", priority=True)]
+    CSS = """
+    HelpScreen { align: center middle; }
+    HelpScreen #help { width: 100%; max-width: 100; height: 100%; border: round $primary;
+                       background: $surface; padding: 0 1; }
+    """
 
     def compose(self) -> ComposeResult:
         with VerticalScroll(id="help"):
             yield Static(Text(HELP))
+
+    def on_mount(self) -> None:
+        self.query_one("#help").border_title = "Help · Esc closes · ↑↓ scroll"
 
     def action_close(self) -> None:
         self.dismiss(None)
