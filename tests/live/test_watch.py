@@ -341,7 +341,7 @@ def test_a_skipped_row_that_leaves_a_gap_is_flagged_as_a_gap(peas):
 @pytest.mark.parametrize("row, words", [
     ("30.5,245", "values look like °F (highest 245 at line 59"),
     ("30.5,155", "highest 155 at line 59"),
-    ("30.5,-10", "-10 °C is not a retort reading"),
+    ("30.5,-10", "reading -10 °C is outside 0 to 150 °C"),
     ("30.5,0", "0 °C is not a retort reading"),
     ("99999999.00,20.00", "past the longest record the watch follows (1440 min from the first row)"),
     ("30.5", "1 field(s) found"),
