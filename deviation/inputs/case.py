@@ -548,6 +548,7 @@ class Deviation(_Model):
     lot: Text
     retort_id: Text
     plant: str = ""
+    shift: str = Field("", description="The shift that ran the cycle (as the plant names it)")
     date: str = ""
     lot_size_containers: Annotated[int, Field(ge=1)]
     initial_temperature_C: TemperatureC

@@ -29,17 +29,18 @@ from datetime import datetime, timedelta
 from typing import Any, Callable
 
 from deviation.errors import CaseError, DeviationError
+from deviation.inputs import limits
 from deviation.inputs.case import Case, LoadedCase, parse_case
 
 # ---------------------------------------------------------------------------------------------
-# Bounds of what the floor screen accepts. The shared validation layer (deviation.inputs) will
-# take them over, where a plant may change them; until then they live here, named once.
+# Bounds of what the floor screen accepts. The shared ones come from the validation layer
+# (rules/limits.toml, where a plant may change them); the floor's own stricter ones are named here.
 
 #: A retort reading typed in must be above this [°C]: 0 or below is a blank or a sensor fault.
-READING_MIN_C = 0.0
-#: ... and at most this [°C]: no retort for low-acid food runs above 150 °C (the retort-log
-#: reader refuses a °C column above it too).
-READING_MAX_C = 150.0
+READING_MIN_C = limits.current().retort_reading_min_C
+#: ... and at most this [°C]: no retort for low-acid food runs above it (rules/limits.toml; the
+#: retort-log reader refuses a °C column above it too).
+READING_MAX_C = limits.current().retort_reading_max_C
 #: A reading more than this above the filed process temperature is refused: a retort does not
 #: overshoot its set point that far; it is a slip (°F, a digit) or the wrong instrument [°C].
 READING_ABOVE_PROCESS_MAX_C = 10.0
@@ -47,8 +48,9 @@ READING_ABOVE_PROCESS_MAX_C = 10.0
 #: not retorted as such) ...
 INITIAL_MIN_C = -20.0
 #: ... and below this [°C]: product at steam on is below boiling; above is a °F slip or a retort
-#: reading typed in the wrong field. It must also be below the filed process temperature.
-INITIAL_MAX_C = 100.0
+#: reading typed in the wrong field (rules/limits.toml). It must also be below the filed process
+#: temperature.
+INITIAL_MAX_C = limits.current().initial_temperature_max_C
 #: The largest lot the floor screen takes [containers].
 LOT_SIZE_MAX = 10_000_000
 #: Longest lot code, retort id, plant or shift [characters].
@@ -548,7 +550,7 @@ def case_data(process: dict, entry: FloorEntry, now_min: float | None,
     """
     pt = process.get("process_temperature_C")
     checked = checked or check_fields(entry, pt if isinstance(pt, (int, float)) else None)
-    dev: dict[str, Any] = {k: v for k, v in checked.values.items() if k != "shift"}
+    dev: dict[str, Any] = dict(checked.values)
     if start is not None:
         dev["date"] = start.date().isoformat()
     events, running = ([], False)
