@@ -96,6 +96,7 @@ def main() -> None:
     _, chili = process_table("OH-CHL-87x115")
     _, peas = process_table("OH-PEA-74x113")
     _, tray = process_table("OH-STW-TRAY")
+    _, beans = process_table("OH-BNS-83x114")
 
     # 1. Temperature drop in a still steam retort during the hold.
     t, T = retort_trace(chili, drops=[(40.0, 48.0, 117.2)], seed=11)
@@ -184,6 +185,33 @@ note = "heaviest of 10 containers at the check-weigher"
     log = write_log("R2-2026-1112-J.csv", t, T)
     write_case("chili_no_deviation", "OH-CHL-87x115", "A normal cycle, for comparison.",
                deviation_block("CHL-261112-J", "R2", 4800, 50.0, log=log))
+
+    # 11. Still steam: the vents were closed early (vent schedule not met).
+    t, T = retort_trace(chili, seed=24)
+    log = write_log("R2-2026-1116-N.csv", t, T)
+    write_case("chili_vent_short", "OH-CHL-87x115",
+               "Retort 2 vents closed after 5 minutes at 101 C (filed: 7 minutes and 104.4 C).",
+               deviation_block("CHL-261116-N", "R2", 4800, 51.0, log=log, extra="""
+[[deviation.events]]
+kind = "venting"
+vent_time_min = 5
+vent_temperature_C = 101.0
+note = "vent timer reset by mistake"
+"""))
+
+    # 12. Water immersion: the water level fell below the top layer for 10 minutes.
+    t, T = retort_trace(beans, start_C=60.0, seed=25)
+    log = write_log("R7-2026-1117-P.csv", t, T)
+    write_case("beans_low_water", "OH-BNS-83x114",
+               "Retort 7 (water immersion): a drain valve leaked; the water stood 15 mm below the top layer from 30 to 40 min.",
+               deviation_block("BNS-261117-P", "R7", 3600, 62.0, log=log, extra="""
+[[deviation.events]]
+kind = "water-level"
+start_min = 30
+end_min = 40
+level_above_top_mm = -15
+note = "sight glass read 15 mm below the top layer; valve closed at 40 min"
+"""))
 
     # 10. A cycle still running: the record so far ends in the hold with a drop.
     t, T = retort_trace(chili, drops=[(25.0, 31.0, 118.0)], end_min=45.0, seed=20)

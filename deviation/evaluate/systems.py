@@ -98,7 +98,8 @@ def system_flags(case: Case, log: RetortProfile | None) -> tuple[list[FlagOut], 
                 flags.append(_flag(
                     "water-level-below-top-layer",
                     f"The water fell {-level:.0f} mm below the top layer of containers from {start:.1f} to "
-                    f"{end:.1f} min: {names} were out of the water. Identify those containers and set them "
+                    f"{end:.1f} min: {names} {'was' if exposed == 1 else 'were'} out of the water. Identify "
+                    "those containers and set them "
                     "aside; their lethality cannot be credited (FDA, Guide to Inspections of Low Acid Canned "
                     "Food Manufacturers, Part 2).", start_min=start, end_min=end, value=level))
             else:

@@ -34,6 +34,9 @@ EXPECTED = {
     "chili_alternate_process": ("covered-by-alternate", {"alternate-process-met"}, "alternate-process-met"),
     "tray_steam_failure": ("reprocess-or-destroy", {"short-hold"}, "botulinum-12d-not-met"),
     "chili_cycle_running": ("evaluate", {"record-ends-before-cooling"}, "cycle-still-running"),
+    # Issue 15: a retort system's own critical factors (21 CFR 113.40(a), (b)).
+    "chili_vent_short": ("reprocess-or-destroy", {"vent-schedule-not-met"}, "vent-schedule-not-met"),
+    "beans_low_water": ("reprocess-or-destroy", {"water-level-below-top-layer"}, "water-level-below-top-layer"),
 }
 
 
