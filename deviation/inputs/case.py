@@ -799,6 +799,80 @@ def load_case(path: str | Path, *, process_resolver=None) -> LoadedCase:
     )
 
 
+# Descriptions (with units) of the keys whose field does not carry one, for ``deviation schema``.
+_DESCRIPTIONS = {
+    "AlternateProcess": {
+        "process_temperature_C": "Retort temperature of the alternate process [°C]",
+        "process_time_min": "Hold at that temperature [min]",
+        "come_up_time_min": "Come-up time of the alternate (default: the scheduled process's) [min]",
+        "minimum_initial_temperature_C": "Lowest initial temperature of the alternate [°C]",
+    },
+    "Container": {
+        "shape": "cylinder (can, jar) or brick (tray, pouch)",
+        "diameter_mm": "Inside diameter of a cylinder [mm]", "height_mm": "Inside height of a cylinder [mm]",
+        "length_mm": "Inside length of a brick [mm]", "width_mm": "Inside width of a brick [mm]",
+        "thickness_mm": "Inside thickness of a brick [mm]",
+    },
+    "CriticalFactor": {
+        "name": "Name of the critical factor as filed", "unit": "Its unit (text)",
+        "min": "Lowest value filed [the factor's unit]", "max": "Highest value filed [the factor's unit]",
+    },
+    "CriticalFactorReading": {
+        "name": "The filed critical factor this reading is of", "value": "The reading [the factor's unit]",
+        "note": "Free text",
+    },
+    "Deviation": {
+        "lot": "Lot or code of the containers", "retort_id": "The retort (or line) that ran the cycle",
+        "plant": "The plant", "date": "Date of the cycle (ISO 8601)",
+        "lot_size_containers": "Containers in the lot [-]",
+        "initial_temperature_C": "Product temperature at steam on, this lot [°C]",
+        "retort_log": "Path of the retort recorder's CSV (time_min or time; temperature_C or _F; optional "
+                      "indicating_temperature_C and system columns)",
+        "cold_spot_log": "Path of a measured cold-spot CSV (a thermocouple in the load)",
+        "process_ref": "A filed process from the library: ID or ID@version (instead of [process])",
+        "reprocess_from_temperature_C": "Product temperature a reprocess would start from [°C]",
+        "events": "What was seen at the retort (see DeviationEvent), times in minutes from steam on",
+        "critical_factor_readings": "Readings of the filed critical factors",
+        "uncertainty": "Spreads for the Monte Carlo estimate",
+        "description": "Free text",
+    },
+    "DeviationEvent": {
+        "kind": "What the event is (see the kinds above)",
+        "at_min": "Time of a reading [min from steam on]", "start_min": "Start [min from steam on]",
+        "end_min": "End [min from steam on]", "temperature_C": "Temperature read (the lowest, for an interval) [°C]",
+        "process_time_min": "Hold actually given [min]", "come_up_time_min": "Come-up actually taken [min]",
+        "vent_time_min": "Vents open for [min]", "vent_temperature_C": "Retort temperature the vents closed at [°C]",
+        "level_above_top_mm": "Water level above the top layer; negative below it [mm]",
+        "rpm": "Rotation speed [rpm]", "speed_fraction": "Reel or conveyor speed as a fraction of the filed speed [-]",
+        "note": "Free text",
+    },
+    "HeatPenetration": {"model": "conduction, heating-curve or finite-difference (see the README)"},
+    "Process": {
+        "id": "Identifier of the scheduled process", "product": "Product and container, in words",
+        "retort_type": "Retort type in words (the system, when filed, is [process.system])",
+        "process_temperature_C": "Filed retort temperature for the hold [°C]",
+        "come_up_time_min": "Filed come-up time, steam on to process temperature [min]",
+        "minimum_initial_temperature_C": "Filed lowest initial product temperature [°C]",
+        "reference_temperature_C": "Tref of the filed F [°C] (121.1 for F0)",
+        "z_C": "z of the filed F [°C difference] (10 for F0)",
+        "microbiology": "The organisms the target is set against",
+        "container": "Container shape and inside dimensions", "heat_penetration": "The cold-spot model",
+        "alternate": "Alternate processes filed with the scheduled process",
+        "critical_factors": "Filed critical factors with their limits",
+    },
+    "RetortSystem": {"kind": "still-steam, water-immersion, water-spray, steam-air, agitating-batch, "
+                             "continuous-rotary or hydrostatic (21 CFR 113.40)"},
+    "Stream": {"entry_start_min": "First container entry [min on the shell record's axis]",
+               "entry_end_min": "Last container entry [min on the shell record's axis]"},
+    "UncertaintySpec": {"samples": "Monte Carlo samples [-]", "seed": "Random seed (the same seed, the same figures)"},
+}
+
+
 def case_json_schema() -> dict:
-    """JSON schema of the case file (``deviation schema``)."""
-    return Case.model_json_schema()
+    """JSON schema of the case file (``deviation schema``): every key with its meaning and unit."""
+    schema = Case.model_json_schema()
+    for model, props in _DESCRIPTIONS.items():
+        for key, text in props.items():
+            prop = schema["$defs"][model]["properties"][key]
+            prop.setdefault("description", text)
+    return schema

@@ -121,3 +121,16 @@ def test_schema_names_the_contract_keys():
     for key in ("process_temperature_C", "target_F_min", "spoilage_D_min", "fh_min", "jh",
                 "retort_log", "cold_spot_log", "lot_size_containers", "critical_factor_readings"):
         assert key in text
+
+
+def test_the_schema_documents_every_key_and_the_unit_of_every_measured_one():
+    """Issue 15: `deviation schema` names every key's meaning; a key with a unit suffix says it."""
+    from deviation.inputs.case import case_json_schema
+
+    schema = case_json_schema()
+    for model, definition in schema["$defs"].items():
+        for key, prop in definition.get("properties", {}).items():
+            text = prop.get("description", "")
+            assert text, (model, key)
+            if key.endswith(("_C", "_min", "_mm", "_m2_s", "_W_m2K", "_W_mK")):
+                assert "[" in text and "]" in text, (model, key, text)
