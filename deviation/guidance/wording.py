@@ -30,3 +30,11 @@ def fmt_probability(p: float, log10_p: float | None = None) -> str:
     if p >= 0.5:
         return f"{p:.3f}"
     return f"{p:.2e} (1 in {1.0 / p:,.0f})"
+
+
+def fmt_probability_short(p: float, log10_p: float | None = None) -> str:
+    """A probability in one short figure (``3.2e-07``); from its log10 when it underflowed."""
+    if (p <= 0.0 or p < 1e-300) and log10_p is not None and math.isfinite(log10_p):
+        exponent = math.floor(log10_p)
+        return f"{10.0 ** (log10_p - exponent):.1f}e{exponent:d}"
+    return f"{p:.1e}"

@@ -12,7 +12,7 @@ from textual.widgets import Static
 
 from deviation.evaluate import Evaluation
 from deviation.evaluate.output import FlagOut
-from deviation.guidance.wording import DISPOSITION_LOOK
+from deviation.guidance.wording import DISPOSITION_LOOK, fmt_probability_short
 
 
 def disposition_look(disposition: str | None) -> tuple[str, str, str]:
@@ -186,9 +186,12 @@ class ResultsPanel(Static):
         if from_log and running:
             t.add_row("spoilage/can", "—", "judged when the cycle ends")
         else:
-            p_ok = ev.spoilage_probability <= ev.target_spoilage_probability * (1 + 1e-9)
-            t.add_row("spoilage/can", f"{ev.spoilage_probability:.1e}",
-                      Text(("✓ ≤ " if p_ok else "✗ > ") + f"{ev.target_spoilage_probability:.0e}",
+            lp, lt = ev.log10_spoilage_probability, ev.log10_target_spoilage_probability
+            p_ok = (lp <= lt + 1e-9 if lp is not None and lt is not None
+                    else ev.spoilage_probability <= ev.target_spoilage_probability * (1 + 1e-9))
+            t.add_row("spoilage/can", fmt_probability_short(ev.spoilage_probability, ev.log10_spoilage_probability),
+                      Text(("✓ ≤ " if p_ok else "✗ > ")
+                           + fmt_probability_short(ev.target_spoilage_probability, ev.log10_target_spoilage_probability),
                            style="green" if p_ok else "bold red"))
             bot_ok = ev.botulinum_log_reductions >= ev.botulinum_log_reductions_required
             t.add_row("botulinum", f"{ev.botulinum_log_reductions:.1f} log",
