@@ -69,6 +69,19 @@ def _predicted_cold_spot(p: dict, t, T, *, initial_C: float, seed: int) -> np.nd
     return np.round(np.interp(t, d.time_min, d.cold_spot_C) + rng.normal(0.0, 0.05, t.size), 2)
 
 
+def shell_trace(p: dict, *, minutes: float, step_min: float = 0.1, drops=(), seed=1) -> tuple[np.ndarray, np.ndarray]:
+    """A continuous cooker's shell record [min, °C]: at temperature all shift, drops laid in."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(0.0, minutes + step_min / 2, step_min)
+    T = p["process_temperature_C"] + 0.3 + rng.uniform(-0.12, 0.12, t.size)
+    for start, end, lowest in drops:
+        inside = (t >= start) & (t <= end)
+        # down over a minute, flat at the bottom, back over a minute
+        depth = np.minimum(np.minimum(t[inside] - start, end - t[inside]), 1.0)
+        T[inside] -= (p["process_temperature_C"] + 0.3 - lowest) * depth
+    return t, np.round(T, 2)
+
+
 def write_log(name: str, t: np.ndarray, T: np.ndarray, column="temperature_C") -> str:
     LOGS.mkdir(exist_ok=True)
     path = LOGS / name
@@ -97,6 +110,8 @@ def main() -> None:
     _, peas = process_table("OH-PEA-74x113")
     _, tray = process_table("OH-STW-TRAY")
     _, beans = process_table("OH-BNS-83x114")
+    _, soup = process_table("OH-SOU-65x101")
+    _, corn = process_table("OH-CRN-74x113")
 
     # 1. Temperature drop in a still steam retort during the hold.
     t, T = retort_trace(chili, drops=[(40.0, 48.0, 117.2)], seed=11)
@@ -211,6 +226,36 @@ start_min = 30
 end_min = 40
 level_above_top_mm = -15
 note = "sight glass read 15 mm below the top layer; valve closed at 40 min"
+"""))
+
+    # 13. Reel-and-spiral: the reel stopped for 6 minutes and the shell fell to 121 C meanwhile.
+    t, T = shell_trace(soup, minutes=150.0, drops=[(60.0, 67.0, 121.0)], seed=26)
+    log = write_log("RS1-2026-1118-Q.csv", t, T)
+    write_case("soup_reel_stop", "OH-SOU-65x101",
+               "Reel-and-spiral line 1: a jam stopped the reel from 60 to 66 min; the shell fell to 121 C.",
+               deviation_block("SOU-261118-Q", "RS1", 14760, 72.0, log=log, extra="""
+[deviation.stream]
+entry_start_min = 5
+entry_end_min = 130
+first_entry = "2026-11-18T06:05:00"
+
+[[deviation.events]]
+kind = "reel-stop"
+start_min = 60
+end_min = 66
+note = "can jam at the transfer valve"
+"""))
+
+    # 14. Hydrostatic tower: the steam dome fell to 117 C for 8 minutes.
+    t, T = shell_trace(corn, minutes=180.0, drops=[(80.0, 88.0, 117.0)], seed=27)
+    log = write_log("HS1-2026-1119-R.csv", t, T)
+    write_case("corn_dome_drop", "OH-CRN-74x113",
+               "Hydrostatic tower 1: the steam dome fell to 117 C from 80 to 88 min (steam valve fault).",
+               deviation_block("CRN-261119-R", "HS1", 13440, 64.0, log=log, extra="""
+[deviation.stream]
+entry_start_min = 5
+entry_end_min = 145
+first_entry = "2026-11-19T05:35:00"
 """))
 
     # 10. A cycle still running: the record so far ends in the hold with a drop.

@@ -16,6 +16,7 @@ CORE_MODULES = [
     "deviation.physics.lethality",
     "deviation.physics.spoilage",
     "deviation.physics.ball_formula",
+    "deviation.physics.continuous",
     "deviation.physics.calibration",
     "deviation.physics.calibration.semilog",
     "deviation.physics.calibration.least_squares",

@@ -110,4 +110,9 @@ class Evaluation(BaseModel):
     guidance: dict[str, Any] | None
     caution: str = CAUTION
     cold_spot: ColdSpot
+    system: str | None = Field(None, description="The retort system's kind, when filed")
+    affected_containers: list[dict[str, Any]] | None = Field(
+        None, description="Continuous systems: entry-time intervals {entry_start_min, entry_end_min, "
+                          "entry_start, entry_end, containers, min_F_min, disposition}, every container "
+                          "inside the shell at any moment of a deviation, and the unaffected ranges")
     case_sha256: str

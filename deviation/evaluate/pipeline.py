@@ -27,6 +27,7 @@ from deviation.evaluate.cold_spot import (
     filed_profile,
     scheduled_F_min,
 )
+from deviation.evaluate.continuous import affected_containers, evaluate_stream
 from deviation.evaluate.output import ColdSpot, CycleOut, Evaluation, FlagOut, LowIntervalOut
 from deviation.evaluate.whatif import (
     continue_as_filed,
@@ -281,8 +282,12 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
         minimum_initial_temperature_C=process.minimum_initial_temperature_C,
         gap_limit_min=dev.record_gap_limit_min,
     )
+    continuous = process.system is not None and process.system.continuous
+    # A continuous shell is brought up before production and holds while containers pass: its
+    # record has no come-up, hold or cooling of a container's own (each one's are worked out below).
+    skip = {"long-come-up", "short-hold", "record-ends-before-cooling"} if continuous else set()
     flags = [FlagOut(code=f.code, message=f.message, start_min=f.start_min, end_min=f.end_min, value=f.value)
-             for f in analysis.flags] + instrument_flags
+             for f in analysis.flags if f.code not in skip] + instrument_flags
     log = (_parse_cached(loaded.retort_log_text, loaded.retort_log_source or "retort log", "retort")
            if loaded.retort_log_text is not None else None)
     system_found, system_facts = systems.system_flags(case, log)
@@ -300,7 +305,19 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
     gaps = [(float(t_rec[i]), float(t_rec[i + 1]))
             for i in np.flatnonzero(np.diff(t_rec) > dev.record_gap_limit_min)]
     worst = None
-    if loaded.cold_spot_log_text is not None:
+    stream = None
+    if continuous:
+        if loaded.cold_spot_log_text is not None:
+            raise CaseError("a measured cold-spot log is one container's; a continuous system is evaluated "
+                            "container by container from the shell's record (leave cold_spot_log out)",
+                            source=loaded.source)
+        worst = (gap_worst_profile(profile, analysis, dev.record_gap_limit_min, process.cooling_water_temperature_C)
+                 if gaps else None)
+        stream = evaluate_stream(case, worst or profile, model, conservative=conservative)
+        delivered = deliver(stream.worst_profile, dev.initial_temperature_C, process, model, conservative=False)
+        interpolated = delivered.F_min
+        source = model.name
+    elif loaded.cold_spot_log_text is not None:
         delivered = _measured(loaded, process, profile, conservative, flags)
         interpolated = delivered.F_min if not conservative else _measured(loaded, process, profile, False).F_min
         source = "measured"
@@ -331,11 +348,22 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
 
     # The headline: the relative F (the model's own error cancelled) where the model over-predicts
     # the filed process, never a figure above the model's own.
-    model_F = delivered.F_min
+    # A continuous system's figure is its worst container's: the engine's slot bound, never above
+    # that container's own F.
+    model_F = min(stream.worst_F_min, delivered.F_min) if stream is not None else delivered.F_min
     relative_F = model_F * target / scheduled_F if source != "measured" else None
     scale = min(1.0, target / scheduled_F) if source != "measured" else 1.0
+    if stream is not None:
+        # A continuous system's nominal passage is the filed process, on the engine's own grid:
+        # the relative correction is taken against it, which also cancels the grid's own error.
+        scale = min(1.0, target / stream.entries.nominal_F_min)
+        relative_F = model_F * target / stream.entries.nominal_F_min
     headline = model_F * scale
-    if source == "measured":
+    if stream is not None:
+        basis = (f"the worst container of the stream (entering at {stream.worst_entry_min:.2f} min), its own "
+                 "history through the shell" + (f", x target / scheduled F ({target:.2f} / {scheduled_F:.2f})"
+                                                if scale < 1.0 else ""))
+    elif source == "measured":
         basis = "measured cold spot, General Method" + (" (lower reading between samples)" if conservative else "")
     elif scale < 1.0:
         basis = (f"relative F: the model's F on the record x target / scheduled F ({target:.2f} / "
@@ -360,7 +388,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
     # An alternate matters only when the scheduled process itself was missed on a time or
     # temperature factor; a cycle that met the scheduled process needs no alternate.
     missed = {f.code for f in analysis.flags} & _ALTERNATE_CAN_COVER
-    alternates = _alternates(case, record, analysis.come_up_min) if missed else []
+    alternates = _alternates(case, record, analysis.come_up_min) if missed and not continuous else []
     if alternates:
         a = alternates[0]
         flags.append(_flag("alternate-process-met",
@@ -370,16 +398,20 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
 
     # Projection and what-if (only where the model predicts from the retort record), on the same
     # footing as the headline.
-    running = _is_running(record, analysis)
+    running = _is_running(record, analysis) and not continuous
     projected = headline
     if running and source != "measured":
         ext_profile, _ = continue_as_filed(worst or profile, process, analysis, model)
         projected = deliver(ext_profile, dev.initial_temperature_C, process, model,
                             conservative=conservative, uncredited_min=gaps).F_min * scale
-    extension, reason = (extension_to_target(loaded, worst or profile, analysis, model, delivered, conservative,
-                                             source, running, target_model_F_min=target / scale,
-                                             uncredited_min=gaps)
-                         if what_if else (None, "not computed"))
+    if continuous:
+        extension, reason = None, ("a continuous system: each entry has its own F (see the affected "
+                                   "containers); there is no one hold to extend")
+    else:
+        extension, reason = (extension_to_target(loaded, worst or profile, analysis, model, delivered,
+                                                 conservative, source, running, target_model_F_min=target / scale,
+                                                 uncredited_min=gaps)
+                             if what_if else (None, "not computed"))
 
     reprocess = (reprocess_as_filed(loaded, model, headline, conservative, delivered.final_field_C)
                  if what_if else None)
@@ -389,7 +421,9 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
     if uncertainty is None:
         uncertainty = dev.uncertainty is not None
     mc = None
-    if uncertainty:
+    if uncertainty and continuous:
+        mc = {"reason": "a continuous system: the Monte Carlo is not run container by container"}
+    elif uncertainty:
         from deviation.inputs.case import UncertaintySpec
 
         mc = monte_carlo(loaded, worst or profile, model, dev.uncertainty or UncertaintySpec(),
@@ -414,6 +448,18 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
                                value=F0_botulinum))
     established = not (gaps and bot < required)
     worst_F0 = F0 if worst is not None else None
+
+    affected = None
+    if stream is not None:
+        twice = scale if over else 1.0
+
+        def word(F_model: float) -> str:
+            F = F_model * scale
+            if F * F0_ratio * twice / micro.botulinum_D_min < required:
+                return "reprocess-or-destroy"
+            return "reprocess" if F < target else "evaluate"
+
+        affected = affected_containers(case, stream, word, scale)
     codes = {f.code for f in flags}
     fully = established and not (codes & _NOT_FULLY_ESTABLISHED)
 
@@ -553,6 +599,8 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
             source=source,
             cumulative_scale=scale,
         ),
+        system=process.system.kind if process.system is not None else None,
+        affected_containers=affected,
         case_sha256=loaded.sha256,
     )
 

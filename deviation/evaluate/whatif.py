@@ -21,8 +21,8 @@ from deviation.evaluate.cold_spot import (
 from deviation.inputs import cycle
 from deviation.inputs import logs as prof
 from deviation.inputs.case import LoadedCase, Process
-from deviation.physics.spoilage import log10_nonsterile_probability, nonsterile_probability
 from deviation.physics.heating.heating_curve import bounding_kernels
+from deviation.physics.spoilage import log10_nonsterile_probability, nonsterile_probability
 from deviation.physics.uncertainty import lognormal_factors, sample_F, sample_F_bounding, summarise
 
 # Longest extension searched for before giving up [min].

@@ -5,4 +5,6 @@
 - ``spoilage``: survivors, nonsterile probability, log reductions.
 - ``uncertainty``: the Monte Carlo batch over heat-penetration parameters.
 - ``calibration``: fh, jh, fc, jc from heat-penetration data (Ball's semi-log method, least squares).
+- ``ball_formula``: Ball's formula method, the hand cross-check of a filed process.
+- ``continuous``: continuous systems, the F of every container entry through the shell.
 """

@@ -37,6 +37,9 @@ EXPECTED = {
     # Issue 15: a retort system's own critical factors (21 CFR 113.40(a), (b)).
     "chili_vent_short": ("reprocess-or-destroy", {"vent-schedule-not-met"}, "vent-schedule-not-met"),
     "beans_low_water": ("reprocess-or-destroy", {"water-level-below-top-layer"}, "water-level-below-top-layer"),
+    # Issue 15: continuous systems, container by container (21 CFR 113.40(d), (f)).
+    "soup_reel_stop": ("evaluate", {"reel-stop", "temperature-low"}, "system-critical-factor"),
+    "corn_dome_drop": ("reprocess", {"temperature-low"}, "below-filed-target"),
 }
 
 
