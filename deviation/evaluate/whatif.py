@@ -7,7 +7,6 @@ import math
 from typing import Any
 
 import numpy as np
-from scipy.optimize import brentq
 
 from deviation.evaluate.cold_spot import (
     ColdSpotModel,
@@ -150,6 +149,8 @@ def extension_to_target(loaded: LoadedCase, profile: prof.RetortProfile, analysi
         hi *= 2.0
         if hi > _EXTENSION_LIMIT_MIN:
             return None, f"no extension up to {_EXTENSION_LIMIT_MIN:.0f} min reaches the target"
+    from scipy.optimize import brentq  # only a lot below its target needs the search
+
     root = brentq(F_with, 0.0, hi, xtol=0.01)
     # Round up to the next 0.1 min: never report less time than the target needs.
     return math.ceil(root * 10.0 - 1e-9) / 10.0, None

@@ -175,6 +175,11 @@ def _data_lines(text: str) -> list[tuple[int, str]]:
     return kept
 
 
+def _plain_rows(lines: list[tuple[int, str]]) -> list[tuple[int, list[str]]]:
+    """The kept lines split at the commas, rows of empty fields left out (no quotes in the text)."""
+    return [(number, line.split(",")) for number, line in lines if line.replace(",", "").strip()]
+
+
 def _csv_rows(lines: list[tuple[int, str]], source: str, what: str) -> list[tuple[int, list[str]]]:
     """Split the kept lines into fields (csv module), keeping each row's first line number."""
     reader = csv.reader([line for _, line in lines])
@@ -283,6 +288,30 @@ def _indicating_column(header: list[str], line: int, source: str) -> tuple[str, 
         return None
     name, index = found[0]
     return ("indicating_temperature_C" if name.endswith("_c") else "indicating_temperature_F"), index
+
+
+def _fast_columns(data, time_index: int, temperature_index: int, width: int):
+    """Both columns of a log whose every row is well-formed, read at once; None otherwise.
+
+    Well-formed: exactly the header's number of fields, and in both columns a finite decimal
+    number. Anything else goes row by row, for the exact message.
+    """
+    if any(len(fields) != width for _, fields in data):
+        return None
+    columns = []
+    for index in (time_index, temperature_index):
+        cells = [fields[index] for _, fields in data]
+        # numpy reads what _number reads, and also 1_000, nan and inf: those go row by row.
+        if "_" in "".join(cells):
+            return None
+        try:
+            values = np.array(cells, dtype=float)
+        except ValueError:
+            return None
+        if not np.all(np.isfinite(values)):
+            return None
+        columns.append(values.tolist())
+    return columns[0], columns[1]
 
 
 def _number(text: str, line: int, column: str, expected: str, source: str) -> float:
@@ -446,7 +475,8 @@ def parse_log_text(
             "(or temperature_F), then at least 2 rows of readings",
             source=source,
         )
-    rows = _csv_rows(lines, source, what)
+    # Without quotes a row is its line split at the commas (what the csv module would give).
+    rows = _plain_rows(lines) if '"' not in text else _csv_rows(lines, source, what)
     if not rows:  # only rows of empty fields
         raise RecordError(
             f"the {what} has no header; expected a header line naming time_min and temperature_C "
@@ -488,6 +518,15 @@ def parse_log_text(
     temperatures: list[float] = []
     times: list[float] = []
     stamps: list[datetime] = []
+    fast = (_fast_columns(data, time_index, temperature_index, len(header))
+            if time_name == "time_min" and indicating is None and not system else None)
+    if fast is not None:
+        # Every row well-formed: read the columns at once (the row-by-row reading below gives
+        # the exact message for a row that is not).
+        times, temperatures = fast
+        line_numbers = [line for line, _ in data]
+        time_texts = [fields[time_index].strip() for _, fields in data]
+        data = []
     for line, fields in data:
         if len(fields) < needed:
             raise RecordError(
