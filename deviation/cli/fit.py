@@ -14,9 +14,12 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from typing import TYPE_CHECKING
 
 from deviation.errors import DeviationError
-from deviation.physics.calibration.results import FitReport
+
+if TYPE_CHECKING:  # the fitting code (scipy.optimize) loads only when `deviation fit` runs
+    from deviation.physics.calibration.results import FitReport
 
 _CYLINDER = ("diameter_mm", "height_mm")
 _BRICK = ("length_mm", "width_mm", "thickness_mm")
@@ -194,19 +197,19 @@ def _g(value: float, digits: int = 4) -> str:
     return text if "." in text else text + ".0"
 
 
-def paste_table(report: FitReport, *, method: str = "least-squares") -> str:
+def paste_table(report: FitReport, *, method: str = "semilog") -> str:
     """A ``[process.heat_penetration]`` TOML table for the chosen thermocouple.
 
     Parameters
     ----------
     report : FitReport
         From :func:`fit_all`
-    method : {"least-squares", "semilog"}
-        Which values go in the table. The default, least squares of the heating-curve model to
-        the actual retort record, gives the parameters with which this tool's own cold-spot model
-        (the same step response superposed over a retort record) reproduces the test; Ball's
-        semi-log values are given in a comment. Falls back to the semi-log values when the least
-        squares did not converge.
+    method : {"semilog", "least-squares"}
+        Which values go in the table. The default, Ball's semi-log fh, jh, fc, jc, is what a
+        filing uses and a process authority recognises (Ball 1923); the least-squares figures
+        (Ball's curves superposed on the actual retort record) stand beside them as comments,
+        labelled. ``least-squares`` puts those in the table instead (falls back to the semi-log
+        values when the least squares did not converge).
 
     Returns
     -------
@@ -235,9 +238,9 @@ def paste_table(report: FitReport, *, method: str = "least-squares") -> str:
     if hc is not None:
         pe = ", ".join(f"{k} {_g(v)} ± {_g(hc.standard_errors[k], 2)}"
                        for k, v in hc.parameters.items())
-        lines.append(f"# least squares (heating-curve model on the retort record): {pe}, "
+        lines.append(f"# least squares (Ball's curves on the actual retort record, for comparison): {pe}, "
                      f"RMS {hc.rms_residual_C:.3f} °C")
-    lines.append(f"# values below: {'least squares' if use_ls else 'semi-log'}")
+    lines.append(f"# values below: {'least squares' if use_ls else 'semi-log (Ball 1923), as a filing uses'}")
     lines.append("[process.heat_penetration]")
     lines.append('model = "heating-curve"')
     if use_ls:

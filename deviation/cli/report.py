@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from deviation.cli.options import add_reading_options
 from deviation.errors import DeviationError
 
 _SUFFIX_FORMAT = {".html": "html", ".htm": "html", ".pdf": "pdf", ".md": "md", ".markdown": "md"}
@@ -34,8 +35,7 @@ def register(subparsers) -> None:
     p.add_argument("--db", default=None, help="record store: SQLite path or SQLAlchemy URL")
     p.add_argument("--rules", action="append", metavar="FILE_OR_DIR",
                    help="a plant rule file or folder laid over the default rules (repeatable)")
-    p.add_argument("--conservative", action="store_true",
-                   help="read between readings at the lower one; never credit more than the lower lethal rate")
+    add_reading_options(p)
     p.add_argument("--uncertainty", action="store_true",
                    help="run the Monte Carlo uncertainty estimate (default: when the case asks for it)")
     p.set_defaults(handler=run_report)
@@ -88,7 +88,8 @@ def _from_record(args, rule_set):
     # The report shows the evaluation the record holds (what was signed off), when it is of the
     # latest snapshot and no other options were asked for; otherwise it evaluates again.
     options = _evaluate_options(args)
-    if view.evaluation is not None and view.evaluation_current and options == {"conservative": False}:
+    stored = (view.evaluation_event or {}).get("options", {}).get("conservative", False)
+    if view.evaluation is not None and view.evaluation_current and options == {"conservative": stored}:
         from deviation.evaluate import Evaluation
 
         ev = Evaluation.model_validate(view.evaluation)

@@ -13,6 +13,7 @@ import sys
 from pathlib import Path
 
 from deviation.cli.common import actor_of, add_common_options, role_of
+from deviation.cli.options import add_reading_options
 from deviation.errors import DeviationError
 
 
@@ -194,7 +195,7 @@ def register(subparsers) -> None:
                         "(default: stop when cooling is done)")
     p.add_argument("--idle-s", type=float, default=3.0, metavar="S", help="with --until-end (default 3)")
     p.add_argument("--poll-s", type=float, default=0.25, metavar="S", help="how often the file is read (default 0.25)")
-    p.add_argument("--conservative", action="store_true", help="evaluate conservatively")
+    add_reading_options(p)
     p.add_argument("--rules", action="append", metavar="FILE_OR_DIR",
                    help="a plant rule file or folder laid over the default rules (repeatable)")
     p.add_argument("--no-record", action="store_true", help="do not start a deviation record (no store)")

@@ -365,13 +365,16 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
                                                 if scale < 1.0 else ""))
     elif source == "measured":
         basis = "measured cold spot, General Method" + (" (lower reading between samples)" if conservative else "")
-    elif scale < 1.0:
-        basis = (f"relative F: the model's F on the record x target / scheduled F ({target:.2f} / "
-                 f"{scheduled_F:.2f}), because the model over-predicts the filed process")
     else:
-        basis = "the model's F on the record" + (
-            ", lower reading between samples" if conservative and profile.recorded else "") + (
-            ", no heat across gaps over the limit" if gaps else "")
+        reading = []
+        if conservative and profile.recorded:
+            reading.append("the lower reading between samples")
+        if gaps:
+            reading.append("no heat across the gaps over the limit")
+        basis = "the model's F on the record" + (f" ({'; '.join(reading)})" if reading else "")
+        if scale < 1.0:
+            basis = (f"relative F: {basis} x target / scheduled F ({target:.2f} / {scheduled_F:.2f}), "
+                     "because the model over-predicts the filed process")
     F0 = headline if z_label == "F0" else F_of(delivered, 121.1, 10.0) * scale
     m = micro
     spoil_z = m.spoilage_z_C if m.spoilage_z_C is not None else process.z_C

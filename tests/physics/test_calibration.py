@@ -342,14 +342,20 @@ def test_fit_all_on_the_demo_recovers_the_generator_parameters(demo_report):
 
 
 def test_paste_table_validates_as_the_case_heat_penetration_table(demo_report):
+    """Issue 12 item 9: the table recommends Ball's semi-log fh, jh, fc, jc (what a filing uses);
+    the least-squares figures stand beside them as labelled comments."""
     text = paste_table(demo_report)
     table = tomllib.loads(text)["process"]["heat_penetration"]
     hp = HeatPenetration.model_validate(table)
-    tc2 = demo_report.chosen_fit().heating_curve.parameters
+    chosen = demo_report.chosen_fit()
     assert hp.model == "heating-curve"
-    assert hp.fh_min == pytest.approx(tc2["fh_min"], rel=1e-3)
-    assert hp.jc == pytest.approx(tc2["jc"], rel=1e-3)
+    assert hp.fh_min == pytest.approx(chosen.semilog.fh_min, rel=1e-3)
+    assert hp.jh == pytest.approx(chosen.semilog.jh, rel=1e-3)
+    assert hp.jc == pytest.approx(chosen.cooling.jc, rel=1e-3)
     assert "thermocouple tc2" in text and "R²" in text
+    assert "# least squares (Ball's curves on the actual retort record, for comparison)" in text
+    ls = tomllib.loads(paste_table(demo_report, method="least-squares"))["process"]["heat_penetration"]
+    assert ls["fh_min"] == pytest.approx(chosen.heating_curve.parameters["fh_min"], rel=1e-3)
     # the commented diffusivity line becomes a valid conduction table when uncommented
     line = next(x for x in text.splitlines() if x.startswith("# thermal_diffusivity_m2_s"))
     conduction = tomllib.loads('model = "conduction"\n' + line[2:])
