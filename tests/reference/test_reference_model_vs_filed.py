@@ -26,14 +26,15 @@ filed hold, target 6.949 min; exact F0 and the tool's figures [min])::
        target)                 hold 8 min short          3.923   6.916   4.177     1.763    1.065
                                hold 12 min short         2.788   5.148   3.109     1.846    1.115
                                drop 6 °C 10 min mid-hold 5.392   8.539   5.157     1.584    0.956
-    heating curve fh 52,       filed cycle               6.960   8.333   6.832     1.197    0.982
-      jh = jc 1.3, fc 52       hold 4 min short          5.313   6.492   5.322     1.222    1.002
-      (scheduled 1.220 x       hold 8 min short          3.923   4.906   4.022     1.250    1.025
-       target)                 hold 12 min short         2.788   3.579   2.934     1.284    1.052
-                               drop 6 °C 10 min mid-hold 5.392   6.278   5.147     1.164    0.955
+    heating curve fh 52,       filed cycle               6.960   8.281   6.829     1.190    0.981
+      jh = jc 1.3, fc 52       hold 4 min short          5.313   6.446   5.316     1.213    1.001
+      (scheduled 1.220 x       hold 8 min short          3.923   4.867   4.014     1.241    1.023
+       target)                 hold 12 min short         2.788   3.547   2.925     1.272    1.049
+                               drop 6 °C 10 min mid-hold 5.392   6.221   5.130     1.154    0.952
 
-The relative F's excess over the product is at most 0.185 of the model's own excess (hold 12 min
-short, heating curve) and its shortfall at most 0.28 (the drop): first-order cancellation. It
+The relative F's excess over the product is at most 0.18 of the model's own excess (hold 12 min
+short, heating curve) and its shortfall at most 0.32 (the drop, heating curve; the lower reading
+between samples is the default): first-order cancellation. It
 is not a bound: a model faster than the product credits a short hold relatively more than the
 filed cycle. DEFECT found (``test_misfiled_model_never_meets_12D_where_the_product_does_not``):
 conduction fh 45 filed for a product of fh 52, hold 14 min short (58 min): the product received
@@ -315,8 +316,8 @@ def test_relative_F_cancels_the_model_error_to_first_order(heat_penetration, sce
     model_error = ev.model_F_min / exact - 1.0
     residual = ev.relative_F_min / exact - 1.0
     assert model_error > 0.15  # the mis-filed model over-predicts the product by far
-    # first-order cancellation: residual / model error from -0.28 to +0.185 (module table)
-    assert -0.3 * model_error <= residual <= 0.2 * model_error
+    # first-order cancellation: residual / model error from -0.32 to +0.18 (module table)
+    assert -0.35 * model_error <= residual <= 0.2 * model_error
     assert ev.delivered_F_min == pytest.approx(ev.relative_F_min, rel=1e-12)
 
 
