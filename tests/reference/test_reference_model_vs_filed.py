@@ -28,7 +28,7 @@ filed hold, target 6.949 min; exact F0 and the tool's figures [min])::
                                drop 6 °C 10 min mid-hold 5.392   8.539   5.157     1.584    0.956
     heating curve fh 52,       filed cycle               6.960   8.281   6.829     1.190    0.981
       jh = jc 1.3, fc 52       hold 4 min short          5.313   6.446   5.316     1.213    1.001
-      (scheduled 1.220 x       hold 8 min short          3.923   4.867   4.014     1.241    1.023
+      (scheduled 1.213 x       hold 8 min short          3.923   4.867   4.014     1.241    1.023
        target)                 hold 12 min short         2.788   3.547   2.925     1.272    1.049
                                drop 6 °C 10 min mid-hold 5.392   6.221   5.130     1.154    0.952
 
