@@ -117,6 +117,79 @@ class HeatingCurveFit:
 
 
 @dataclass(frozen=True)
+class BrokenHeatingCurveFit:
+    """Result of Ball's semi-logarithmic method for a broken heating curve, one thermocouple.
+
+    Two straight lines on ``log10(T_R - T)``: the first (fh, jh) from the end of the lag to the
+    break, the second (fh2) after it; the break time ``x_bh`` is counted from the corrected
+    zero (Ball 1923; Stumbo 1973, notation from memory). The first line's figures have the
+    names of :class:`HeatingCurveFit`; the second line's carry a ``2``.
+
+    Parameters
+    ----------
+    fh_min : float
+        Rate index of the first line, ``-1/slope`` [min]; of the only line when no break
+    jh : float
+        Heating lag factor of the first line at the corrected zero [-]
+    fh2_min : float or None
+        Rate index of the second line [min]; None when no break was found
+    break_min : float or None
+        x_bh, break time from the corrected zero [min]: where the two lines meet, or as given
+    break_time_min : float or None
+        The break on the test's own time axis (from steam on) [min]
+    break_temperature_C : float or None
+        Temperature of the first line at the break, ``T_R - g_bh`` [°C]: the temperature at
+        which the product breaks
+    break_given : bool
+        True when the break time was given rather than found
+    retort_C, initial_C, come_up_min, corrected_zero_min, pseudo_initial_C
+        As in :class:`HeatingCurveFit` (``pseudo_initial_C`` of the first line) [°C, min]
+    r_squared, rms_residual_C, window_start_min, window_end_min, n_points
+        The first line's window and fit, as in :class:`HeatingCurveFit`
+    r_squared2, rms_residual2_C, window2_start_min, window2_end_min, n_points2
+        The second line's (None when no break) [-, °C, min, min, count]
+    noise_estimate_C : float
+        Thermocouple noise standard deviation used for the straightness tests [°C]
+    note : str
+        Anything the fit could not do as intended, or why no break was found ("" when none)
+    """
+
+    fh_min: float
+    jh: float
+    fh2_min: float | None
+    break_min: float | None
+    break_time_min: float | None
+    break_temperature_C: float | None
+    break_given: bool
+    retort_C: float
+    initial_C: float
+    come_up_min: float
+    corrected_zero_min: float
+    pseudo_initial_C: float
+    r_squared: float
+    rms_residual_C: float
+    window_start_min: float
+    window_end_min: float
+    n_points: int
+    r_squared2: float | None
+    rms_residual2_C: float | None
+    window2_start_min: float | None
+    window2_end_min: float | None
+    n_points2: int | None
+    noise_estimate_C: float
+    note: str = ""
+
+    @property
+    def broken(self) -> bool:
+        """True when the curve has a second line."""
+        return self.fh2_min is not None
+
+    def to_dict(self) -> dict:
+        """A JSON-able dict (NaN and infinities become None)."""
+        return _json_safe(asdict(self))
+
+
+@dataclass(frozen=True)
 class CoolingCurveFit:
     """Result of the semi-logarithmic cooling-curve method for one thermocouple.
 
