@@ -112,6 +112,7 @@ def main() -> None:
     _, beans = process_table("OH-BNS-83x114")
     _, soup = process_table("OH-SOU-65x101")
     _, corn = process_table("OH-CRN-74x113")
+    _, pudding = process_table("OH-RPD-83x114")
 
     # 1. Temperature drop in a still steam retort during the hold.
     t, T = retort_trace(chili, drops=[(40.0, 48.0, 117.2)], seed=11)
@@ -264,6 +265,14 @@ first_entry = "2026-11-19T05:35:00"
     write_case("chili_cycle_running", "OH-CHL-87x115",
                "Still in the hold at 45 min, after a 6-minute drop to 118 C: what if the rest runs as filed?",
                deviation_block("CHL-261113-K", "R3", 4800, 47.0, log=log))
+
+    # 15. A broken heating curve: the rice pudding had thickened when retort 3 lost steam.
+    t, T = retort_trace(pudding, drops=[(50.0, 59.0, 115.5)], seed=28)
+    log = write_log("R3-2026-1120-S.csv", t, T)
+    write_case("pudding_steam_drop", "OH-RPD-83x114",
+               "Retort 3 fell to 115.5 C from 50 to 59 min, after the pudding had thickened.",
+               deviation_block("RPD-261120-S", "R3", 3600, 68.0, log=log,
+                               extra='description = "Steam supply shared with the blancher; the retort read 115.5 C at the lowest."\n'))
 
 
 if __name__ == "__main__":

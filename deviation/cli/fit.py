@@ -230,6 +230,13 @@ def paste_table(report: FitReport, *, method: str = "semilog") -> str:
         f"RMS {semi.rms_residual_C:.3f} °C, {semi.window_start_min:g}-{semi.window_end_min:g} "
         f"min ({semi.n_points} readings)",
     ]
+    broken = tc.broken if not use_ls else None
+    if tc.broken is not None:
+        b = tc.broken
+        lines.append(
+            f"# broken heating curve (Ball): fh {b.fh_min:.2f} min, jh {b.jh:.3f} to the break at "
+            f"{b.break_min:.2f} min from the corrected zero ({b.break_temperature_C:.1f} °C), then "
+            f"fh2 {b.fh2_min:.2f} min" + (f"; {b.note}" if b.note else ""))
     if cool is not None:
         lines.append(
             f"# semi-log cooling: fc {cool.fc_min:.2f} min, jc {cool.jc:.3f}, "
@@ -240,6 +247,8 @@ def paste_table(report: FitReport, *, method: str = "semilog") -> str:
                        for k, v in hc.parameters.items())
         lines.append(f"# least squares (Ball's curves on the actual retort record, for comparison): {pe}, "
                      f"RMS {hc.rms_residual_C:.3f} °C")
+    if use_ls and tc.broken is not None:
+        lines.append("# the least squares fit one straight line: the break above is not in the values below")
     lines.append(f"# values below: {'least squares' if use_ls else 'semi-log (Ball 1923), as a filing uses'}")
     lines.append("[process.heat_penetration]")
     lines.append('model = "heating-curve"')
@@ -248,6 +257,9 @@ def paste_table(report: FitReport, *, method: str = "semilog") -> str:
                   if k in hc.parameters}
     else:
         values = {"fh_min": semi.fh_min, "jh": semi.jh}
+        if broken is not None:
+            values = {"fh_min": broken.fh_min, "jh": broken.jh, "fh2_min": broken.fh2_min,
+                      "break_min": broken.break_min, "break_temperature_C": broken.break_temperature_C}
         if cool is not None:
             values.update(fc_min=cool.fc_min, jc=cool.jc)
     for key, value in values.items():

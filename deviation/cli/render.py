@@ -57,6 +57,14 @@ def figures_table(ev: Evaluation) -> Table:
     if ev.interpolated_F_min is not None and abs(ev.interpolated_F_min - (ev.model_F_min or ev.delivered_F_min)) > 1e-9:
         t.add_row(f"  interpolated {F} (not used)", f"{ev.interpolated_F_min:.2f} min",
                   "straight lines between readings, gaps credited: a friendlier figure")
+    if ev.broken_curve is not None:
+        b = ev.broken_curve
+        when = ("did not thicken on this record" if b["earliest_break_min"] is None else
+                f"thickened from {b['earliest_break_min']:.1f} min (earliest)"
+                + ("" if b["latest_break_min"] is None else f" to {b['latest_break_min']:.1f} min (surely)"))
+        t.add_row("broken heating curve", f"{b['break_temperature_C']:.1f} °C",
+                  f"the product thickens at this temperature (as filed): fh {b['fh_min']:g} then "
+                  f"{b['fh2_min']:g} min; on this record it {when}")
     if F == "F" and ev.F0_min is not None:
         t.add_row("  F0 (121.1 °C, z 10 °C)", f"{ev.F0_min:.2f} min", "the botulinum figure")
     t.add_row(f"filed target {F}", f"{ev.target_F_min:.2f} min", "")
@@ -96,7 +104,9 @@ def figures_table(ev: Evaluation) -> Table:
     if c.lowest_during_hold_C is not None:
         t.add_row("lowest retort during hold", f"{c.lowest_during_hold_C:.1f} °C", "")
     mc = ev.uncertainty
-    if mc:
+    if mc and "F_p05_min" not in mc:
+        t.add_row("Monte Carlo", "not run", str(mc.get("reason", "")))
+    elif mc:
         t.add_row("F0, 5th percentile (Monte Carlo)", f"{mc['F_p05_min']:.2f} min",
                   f"{mc['samples']} samples, seed {mc['seed']}")
         t.add_row("probability F0 below target", f"{mc.get('probability_below_target', mc['probability_F_below_target']):.1%}", "")

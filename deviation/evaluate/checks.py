@@ -85,9 +85,11 @@ def ball_formula_F(process: Process, model: ColdSpotModel) -> tuple[float | None
     """Ball's formula F [min] for the filed cycle, and the jh it used (None where it cannot apply).
 
     fh and jh as filed (heating-curve model), or for the conduction models fh from the model and
-    jh as filed, else the shape's theoretical centre jh.
+    jh as filed, else the shape's theoretical centre jh. Not for a broken heating curve.
     """
     hp = process.heat_penetration
+    if model.broken is not None:  # the straight-line formula would credit the first line throughout
+        return None, None
     jh = hp.jh if hp.jh is not None else (_theoretical_jh(process, model) if model.name != "heating-curve" else None)
     if jh is None or not (process.process_temperature_C - process.cooling_water_temperature_C) > 0.0:
         return None, None

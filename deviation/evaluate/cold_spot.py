@@ -48,6 +48,10 @@ class ColdSpotModel:
     fh_min: float
     fd: Callable[..., Any] | None = None
     h_over_k_per_m: float | None = None  # the Biot boundary's h/k [1/m]; None: surface at the retort
+    # A broken heating curve: the keyword arguments of ``heating_curve.broken_curve_cold_spot``
+    # (the record model: the product breaks once, at a temperature), which ``deliver`` runs;
+    # ``heating``/``falling`` are then the time-invariant pair, for no F on a record.
+    broken: dict | None = None
 
 
 def _h_over_k(process: Process) -> float | None:
@@ -86,6 +90,22 @@ def _finite_difference_model(process: Process) -> ColdSpotModel:
     return ColdSpotModel("finite-difference", None, None, float(fh), fd=run, h_over_k_per_m=h_over_k)
 
 
+def _broken_curve_model(process: Process) -> ColdSpotModel:
+    """Ball's broken heating curve (Ball 1923; Stumbo 1973) read as an event of the product.
+
+    The product breaks once, when its cold spot reaches the filed ``break_temperature_C`` (the
+    heat penetration test's temperature at the break: required, never guessed, since the F moves
+    either way with it).
+    """
+    hp = process.heat_penetration
+    level = float(hp.break_temperature_C)
+    rise, fall = heating_curve.bounding_kernels(hp.fh_min, hp.jh, hp.fc_min, hp.jc,
+                                                fh2_min=hp.fh2_min, break_min=hp.break_min)
+    broken = dict(fh_min=hp.fh_min, jh=hp.jh, fh2_min=hp.fh2_min, break_min=hp.break_min,
+                  break_temperature_C=level, fc_min=hp.fc_min, jc=hp.jc)
+    return ColdSpotModel("heating-curve", rise, fall, float(hp.fh_min), broken=broken)
+
+
 def cold_spot_model(process: Process) -> ColdSpotModel:
     """Build the heat-penetration model named in ``[process.heat_penetration]``.
 
@@ -96,7 +116,9 @@ def cold_spot_model(process: Process) -> ColdSpotModel:
     - ``heating-curve``: Ball's parameters read as the bounding pair of step responses
       (:func:`deviation.physics.heating.heating_curve.bounding_kernels`): rises answered by
       Ball's lag form, falls by the fast two-stage form, so the cold spot never runs ahead of
-      the product.
+      the product. With ``fh2_min`` and ``break_min``, Ball's broken heating curve: the product
+      breaks once, at the filed break temperature, and never earlier than it could have
+      (:func:`deviation.physics.heating.heating_curve.broken_curve_cold_spot`).
     - ``finite-difference``: Teixeira et al. (1969).
     """
     hp, box = process.heat_penetration, process.container
@@ -122,6 +144,8 @@ def cold_spot_model(process: Process) -> ColdSpotModel:
                                    length_m=dims[0], width_m=dims[1], thickness_m=dims[2],
                                    h_over_k_per_m=h_over_k)
         return ColdSpotModel("conduction", fn, None, float(fh), h_over_k_per_m=h_over_k)
+    if hp.model == "heating-curve" and hp.fh2_min is not None:
+        return _broken_curve_model(process)
     if hp.model == "heating-curve":
         rise, fall = heating_curve.bounding_kernels(hp.fh_min, hp.jh, hp.fc_min, hp.jc)
         return ColdSpotModel("heating-curve", rise, fall, float(hp.fh_min))
@@ -143,6 +167,8 @@ class Delivered:
     final_field_C: np.ndarray | None = None  # finite-difference model only
     conservative: bool = False  # the lower reading between samples was taken
     uncredited_min: tuple = ()  # windows [min] in which no lethality was credited
+    # A broken heating curve: (earliest, latest) time the product can have broken [min, record clock]
+    break_window_min: tuple[float | None, float | None] | None = None
 
 
 def model_grid(profile: prof.RetortProfile, conservative: bool, model: ColdSpotModel | None = None):
@@ -173,8 +199,14 @@ def deliver(profile: prof.RetortProfile, initial_C: float, process: Process, mod
     """
     conservative = conservative and profile.recorded
     t0, grid, retort = model_grid(profile, conservative, model)
-    field = None
-    if model.fd is not None:
+    field, window = None, None
+    if model.broken is not None:
+        found = heating_curve.broken_curve_cold_spot(grid, retort, initial_C, **model.broken,
+                                                     max_ages=max_ages or _BOUNDING_MAX_AGES)
+        cold = found.cold_spot_C
+        window = tuple(None if b is None else b + t0
+                       for b in (found.earliest_break_min, found.latest_break_min))
+    elif model.fd is not None:
         result = model.fd(grid, retort, initial_C)
         cold, field = result.cold_spot_C, result.final_field_C
     else:
@@ -184,7 +216,7 @@ def deliver(profile: prof.RetortProfile, initial_C: float, process: Process, mod
                             conservative=conservative,
                             uncredited_min=[(a - t0, b - t0) for a, b in uncredited_min])
     return Delivered(grid + t0, retort, cold, cum, float(F), field, conservative,
-                     tuple(uncredited_min))
+                     tuple(uncredited_min), window)
 
 
 def F_of(delivered: Delivered, reference_temperature_C: float, z_C: float) -> float:

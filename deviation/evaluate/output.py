@@ -64,6 +64,10 @@ class Evaluation(BaseModel):
     conservative: bool
     delivered_F_min: float = Field(description="The headline F the guidance stands on [min]")
     F_basis: str | None = Field(None, description="What the headline F is, in words")
+    broken_curve: dict[str, Any] | None = Field(
+        None, description="A broken heating curve: fh_min, fh2_min, break_min, break_temperature_C, "
+                          "and earliest_break_min / latest_break_min, when the "
+                          "product can have and surely has thickened on this record (None: not on it) [min]")
     model_F_min: float | None = Field(
         None, description="The model's F on the record: lower reading between samples (unless "
                           "--interpolate), no heat across gaps over the limit [min]")

@@ -241,6 +241,17 @@ def _measured(loaded: LoadedCase, process: Process, profile: prof.RetortProfile,
     return Delivered(measured.time_min, retort_on, measured.temperature_C, cum, float(F), None, conservative)
 
 
+
+def _broken_curve_out(model, delivered) -> dict[str, Any] | None:
+    """The broken heating curve's parameters and when the product broke on this record."""
+    if model.broken is None:
+        return None
+    b = model.broken
+    earliest, latest = delivered.break_window_min or (None, None)
+    return {"fh_min": b["fh_min"], "fh2_min": b["fh2_min"], "break_min": b["break_min"],
+            "break_temperature_C": b["break_temperature_C"],
+            "earliest_break_min": earliest, "latest_break_min": latest}
+
 def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=None,
                   what_if: bool = True, uncertainty: bool | None = None) -> Evaluation:
     """Evaluate one deviation case.
@@ -371,6 +382,9 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
             reading.append("the lower reading between samples")
         if gaps:
             reading.append("no heat across the gaps over the limit")
+        if model.broken is not None:
+            reading.append(f"a broken heating curve, the product thickening at "
+                           f"{model.broken['break_temperature_C']:.1f} °C")
         basis = "the model's F on the record" + (f" ({'; '.join(reading)})" if reading else "")
         if scale < 1.0:
             basis = (f"relative F: {basis} x target / scheduled F ({target:.2f} / {scheduled_F:.2f}), "
@@ -426,6 +440,9 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
     mc = None
     if uncertainty and continuous:
         mc = {"reason": "a continuous system: the Monte Carlo is not run container by container"}
+    elif uncertainty and model.broken is not None and source != "measured":
+        mc = {"reason": "a broken heating curve: the break is an event of the product (its temperature "
+                        "and time move with every sample), so the Monte Carlo over fh and jh is not run"}
     elif uncertainty:
         from deviation.inputs.case import UncertaintySpec
 
@@ -544,6 +561,7 @@ def evaluate_case(loaded: LoadedCase, *, conservative: bool = True, rule_set=Non
         conservative=conservative,
         delivered_F_min=headline,
         F_basis=basis,
+        broken_curve=_broken_curve_out(model, delivered),
         model_F_min=model_F,
         relative_F_min=relative_F,
         interpolated_F_min=interpolated,

@@ -89,7 +89,9 @@ def _bounds() -> dict[str, tuple[float, float, str]]:
         "spores_per_container": (1e-12, lim.spores_per_container_max, ""),
         "botulinum_log_reductions_required": (1.0, 100.0, ""),
         "diameter_mm": dims, "height_mm": dims, "length_mm": dims, "width_mm": dims, "thickness_mm": dims,
-        "fh_min": fh, "fc_min": fh, "jh": j, "jc": j,
+        "fh_min": fh, "fc_min": fh, "fh2_min": fh, "jh": j, "jc": j,
+        "break_min": (0.0, lim.process_time_max_min, "min"),
+        "break_temperature_C": (-50.0, lim.retort_reading_max_C, "°C"),
         "thermal_diffusivity_m2_s": (lim.diffusivity_min_m2_s, lim.diffusivity_max_m2_s, "m²/s"),
         "surface_heat_transfer_W_m2K": (1.0, lim.surface_heat_transfer_max_W_m2K, "W/(m²·K)"),
         "thermal_conductivity_W_mK": (0.01, 100.0, "W/(m·K)"),
@@ -246,6 +248,15 @@ class HeatPenetration(_Model):
                     "accepted as an older name")
     thermal_conductivity_W_mK: Positive | None = Field(
         None, description="Product thermal conductivity, with surface_heat_transfer_W_m2K [W/(m·K)]")
+    fh2_min: Positive | None = Field(
+        None, description="Broken heating curve (model 'heating-curve', with break_min): the second "
+                          "line's rate factor fh2 [min]")
+    break_min: float | None = Field(
+        None, description="Broken heating curve: the break time xbh from the corrected zero of the heat "
+                          "penetration test [min]")
+    break_temperature_C: TemperatureC | None = Field(
+        None, description="Broken heating curve: the cold-spot temperature at which the product "
+                          "thickens, read from the heat penetration test at the break [°C]")
 
     @model_validator(mode="after")
     def _parameters(self) -> HeatPenetration:
@@ -267,6 +278,21 @@ class HeatPenetration(_Model):
                 raise ValueError(f"model 'heating-curve' needs fh_min and jh; missing {', '.join(missing)}")
             if self.jc is not None and self.fc_min is None:
                 raise ValueError("jc is given without fc_min; give both or neither")
+        broken = [k for k in ("fh2_min", "break_min") if getattr(self, k) is not None]
+        if broken and self.model != "heating-curve":
+            raise ValueError(f"{' and '.join(broken)} (a broken heating curve) need model 'heating-curve'")
+        if len(broken) == 1:
+            missing = "break_min" if broken == ["fh2_min"] else "fh2_min"
+            raise ValueError(f"a broken heating curve needs fh2_min and break_min; missing {missing}")
+        if self.break_temperature_C is not None and not broken:
+            raise ValueError("break_temperature_C is given without a broken heating curve "
+                             "(fh2_min and break_min)")
+        if broken and self.break_temperature_C is None:
+            # not guessed: where the product breaks moves the F either way (a product still thin
+            # when the retort falls loses more), and the test's own initial temperature sets it
+            raise ValueError("a broken heating curve needs break_temperature_C: the cold-spot "
+                             "temperature at the break in the heat penetration test ('deviation fit' "
+                             "gives it)")
         return self
 
 
@@ -415,6 +441,12 @@ class Process(_Model):
             raise ValueError(f"minimum_initial_temperature_C {self.minimum_initial_temperature_C:g} °C is at or "
                              f"above the process temperature {self.process_temperature_C:g} °C; expected a "
                              "product temperature at steam on below it")
+        brk = self.heat_penetration.break_temperature_C
+        if brk is not None and brk >= self.process_temperature_C:
+            # a product that never breaks heats on the first line: more F than it may have had
+            raise ValueError(f"heat_penetration.break_temperature_C {brk:g} °C is at or above the process "
+                             f"temperature {self.process_temperature_C:g} °C; expected the cold-spot "
+                             "temperature at the break of the filed curve, below it")
         return self
 
     @field_validator("critical_factors")

@@ -40,6 +40,9 @@ EXPECTED = {
     # Issue 15: continuous systems, container by container (21 CFR 113.40(d), (f)).
     "soup_reel_stop": ("evaluate", {"reel-stop", "temperature-low"}, "system-critical-factor"),
     "corn_dome_drop": ("reprocess", {"temperature-low"}, "below-filed-target"),
+    # A broken heating curve: the pudding had thickened before the drop, so it recovers on the
+    # second line (fh 75 min) and the F0 falls far below the target.
+    "pudding_steam_drop": ("reprocess", {"temperature-low"}, "below-filed-target"),
 }
 
 

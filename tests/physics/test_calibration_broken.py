@@ -195,3 +195,32 @@ def test_result_is_json_able_and_keeps_the_single_line_names():
         "fh_min", "jh", "retort_C", "initial_C", "come_up_min", "corrected_zero_min",
         "pseudo_initial_C", "r_squared", "rms_residual_C", "window_start_min",
         "window_end_min", "n_points", "noise_estimate_C", "note"}
+
+
+# --------------------------------------------------------------------------------------------
+# the whole test: fit_all finds the break, paste_table files it (with its break temperature)
+
+
+def test_fit_all_and_paste_table_file_a_broken_curve():
+    import tomllib
+
+    from deviation.cli.fit import paste_table
+    from deviation.inputs.case import HeatPenetration
+    from deviation.inputs.heat_penetration import read_heat_penetration_csv
+    from deviation.physics.calibration import fit_all
+
+    fh, jh, fh2, xbh, come_up, IT = 24.0, 1.2, 75.0, 12.0, 10.0, 60.0
+    t = np.arange(0.0, 200.0, 0.5)
+    retort = np.where(t < come_up, IT + (TR_C - IT) * t / come_up, TR_C)
+    rows = ["time_min,retort_C,tc1_C,tc2_C"]
+    slow = broken_curve(t, fh, jh, fh2, xbh, come_up, IT)
+    fast = broken_curve(t, 0.8 * fh, jh, 0.8 * fh2, xbh, come_up, IT)  # not the slowest
+    rows += [f"{a:g},{r:.4f},{b:.4f},{c:.4f}" for a, r, b, c in zip(t, retort, slow, fast)]
+    report = fit_all(read_heat_penetration_csv("\n".join(rows) + "\n", source="broken.csv"))
+    assert report.chosen == "tc1"
+    tc = report.chosen_fit()
+    assert tc.broken is not None and tc.broken.fh2_min == pytest.approx(fh2, rel=1e-3)
+    table = tomllib.loads(paste_table(report))["process"]["heat_penetration"]
+    hp = HeatPenetration.model_validate(table)  # accepted as filed: the break temperature with it
+    assert (hp.fh_min, hp.jh, hp.fh2_min, hp.break_min) == pytest.approx((fh, jh, fh2, xbh), rel=1e-3)
+    assert hp.break_temperature_C == pytest.approx(break_temperature(fh, jh, xbh, IT, TR_C), abs=0.05)

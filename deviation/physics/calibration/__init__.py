@@ -37,6 +37,7 @@ References
 from deviation.physics.calibration.fit import fit_all
 from deviation.physics.calibration.least_squares import least_squares_fit
 from deviation.physics.calibration.results import (
+    BrokenHeatingCurveFit,
     ContainerGeometry,
     CoolingCurveFit,
     FitReport,
@@ -49,10 +50,12 @@ from deviation.physics.calibration.results import (
 from deviation.physics.calibration.semilog import (
     CORRECTED_ZERO_FRACTION,
     retort_phases,
+    semilog_broken_fit,
     semilog_cooling_fit,
     semilog_fit,
 )
 
-__all__ = ["CORRECTED_ZERO_FRACTION", "ContainerGeometry", "CoolingCurveFit", "FitReport",
+__all__ = ["BrokenHeatingCurveFit", "CORRECTED_ZERO_FRACTION", "ContainerGeometry", "CoolingCurveFit", "FitReport",
            "HeatPenData", "HeatingCurveFit", "ModelFit", "RetortPhases", "ThermocoupleFit",
-           "fit_all", "least_squares_fit", "retort_phases", "semilog_cooling_fit", "semilog_fit"]
+           "fit_all", "least_squares_fit", "retort_phases", "semilog_broken_fit", "semilog_cooling_fit",
+           "semilog_fit"]

@@ -12,7 +12,12 @@ from deviation.physics.calibration.results import (
     HeatPenData,
     ThermocoupleFit,
 )
-from deviation.physics.calibration.semilog import retort_phases, semilog_cooling_fit, semilog_fit
+from deviation.physics.calibration.semilog import (
+    retort_phases,
+    semilog_broken_fit,
+    semilog_cooling_fit,
+    semilog_fit,
+)
 from deviation.physics.lethality import general_method
 
 #: F0 reference (21 CFR 113 practice: 121.1 °C, z 10 °C) for the measured F0 of each thermocouple.
@@ -28,7 +33,8 @@ def fit_all(
 ) -> FitReport:
     """Fit every thermocouple of a heat penetration test by both methods; choose the slowest.
 
-    For each thermocouple: Ball's semi-log heating fit (:func:`semilog_fit`), the cooling fit
+    For each thermocouple: Ball's semi-log heating fit (:func:`semilog_fit`) and, where the
+    readings show a break, the broken-curve fit (:func:`semilog_broken_fit`), the cooling fit
     where the record has a cooling phase (:func:`semilog_cooling_fit`), least squares of the
     heating-curve model (and of the conduction model when ``container`` is given) to the actual
     retort record (:func:`least_squares_fit`), the thermal diffusivity from the semi-log fh
@@ -79,6 +85,11 @@ def fit_all(
         semi = attempt("semi-log heating", lambda: semilog_fit(
             t, T, phases.plateau_C, come_up_min=come_up, initial_C=IT,
             steam_off_min=phases.steam_off_min))
+        broken = attempt("semi-log broken heating", lambda: semilog_broken_fit(
+            t, T, phases.plateau_C, come_up_min=come_up, initial_C=IT,
+            steam_off_min=phases.steam_off_min))
+        if broken is not None and broken.fh2_min is None:
+            broken = None  # one straight line: the plain semi-log fit says it all
         cool = None
         if phases.steam_off_min is not None:
             cool = attempt("semi-log cooling", lambda: semilog_cooling_fit(
@@ -101,7 +112,7 @@ def fit_all(
             cond = attempt("least squares (conduction)", lambda: least_squares_fit(
                 t, T, data.time_min, data.retort_C, initial_C=IT, model="conduction",
                 geometry=container, guess=cguess))
-        fits.append(ThermocoupleFit(name, IT, float(F0), semi, cool, hc, cond, alpha, problems))
+        fits.append(ThermocoupleFit(name, IT, float(F0), semi, cool, hc, cond, alpha, problems, broken))
 
     fitted = [f for f in fits if f.semilog is not None]
     if not fitted:

@@ -350,6 +350,8 @@ class ThermocoupleFit:
         Thermal diffusivity from the semi-log fh and the dimensions [m²/s]
     problems : list of str
         Fits that could not be made, and why
+    broken : BrokenHeatingCurveFit or None
+        Ball's semi-log broken-curve fit, when the readings show a break (None otherwise)
     """
 
     name: str
@@ -361,6 +363,7 @@ class ThermocoupleFit:
     conduction: ModelFit | None = None
     diffusivity_from_fh_m2_s: float | None = None
     problems: list[str] = field(default_factory=list)
+    broken: BrokenHeatingCurveFit | None = None
 
 
 @dataclass(frozen=True)
