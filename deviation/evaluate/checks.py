@@ -74,22 +74,24 @@ def _theoretical_jh(process: Process, model: ColdSpotModel) -> float | None:
 @functools.lru_cache(maxsize=128)
 def _ball_cached(process_json: str, fh_min: float, jh: float) -> float:
     process = Process.model_validate_json(process_json)
+    hp = process.heat_penetration
+    broken = ({"fh2_min": hp.fh2_min, "break_time_min": hp.break_min}
+              if hp.model == "heating-curve" and hp.fh2_min is not None else {})
     return ball_formula.ball_formula(
         fh_min, jh, process.minimum_initial_temperature_C, process.process_temperature_C,
         process.process_time_min, process.come_up_time_min, z_C=process.z_C,
         reference_temperature_C=process.reference_temperature_C,
-        m_plus_g_C=process.process_temperature_C - process.cooling_water_temperature_C).F_min
+        m_plus_g_C=process.process_temperature_C - process.cooling_water_temperature_C, **broken).F_min
 
 
 def ball_formula_F(process: Process, model: ColdSpotModel) -> tuple[float | None, float | None]:
     """Ball's formula F [min] for the filed cycle, and the jh it used (None where it cannot apply).
 
     fh and jh as filed (heating-curve model), or for the conduction models fh from the model and
-    jh as filed, else the shape's theoretical centre jh. Not for a broken heating curve.
+    jh as filed, else the shape's theoretical centre jh. A broken heating curve with Ball's
+    broken-curve formula (fh to the break, fh2 after it and in cooling).
     """
     hp = process.heat_penetration
-    if model.broken is not None:  # the straight-line formula would credit the first line throughout
-        return None, None
     jh = hp.jh if hp.jh is not None else (_theoretical_jh(process, model) if model.name != "heating-curve" else None)
     if jh is None or not (process.process_temperature_C - process.cooling_water_temperature_C) > 0.0:
         return None, None

@@ -20,7 +20,7 @@ from deviation.evaluate.whatif import insert_hold
 from deviation.errors import CaseError
 from deviation.inputs.case import load_case, parse_case
 from deviation.inputs.logs import parse_log_text
-from deviation.physics.heating.heating_curve import break_temperature
+from deviation.physics.ball_formula import ball_formula
 from deviation.physics.heating.superposition import superpose
 from deviation.physics.lethality import general_method
 
@@ -84,8 +84,13 @@ def test_the_evaluation_says_where_the_product_broke():
     crossing = float(np.interp(97.5, ev.cold_spot.temperature_C[:600], ev.cold_spot.time_min[:600]))
     assert crossing >= b["earliest_break_min"] - 0.1
     assert "broken heating curve" in ev.F_basis and "97.5 °C" in ev.F_basis
-    # the straight-line cross-checks do not apply, and say why
-    assert ev.ball_formula_F_min is None
+    # Ball's broken-curve formula for the filed cycle stands beside it (Ball 1923; Stumbo 1973)
+    broken_ball = ball_formula(24.0, 1.2, 65.0, 121.1, 65.0, 10.0, m_plus_g_C=121.1 - 22.0,
+                               fh2_min=75.0, break_time_min=12.0).F_min
+    straight_ball = ball_formula(24.0, 1.2, 65.0, 121.1, 65.0, 10.0, m_plus_g_C=121.1 - 22.0).F_min
+    assert ev.ball_formula_F_min == pytest.approx(broken_ball, rel=1e-12)
+    assert ev.ball_formula_F_min < straight_ball
+    # the Monte Carlo does not apply, and says why
     assert "broken heating curve" in ev.uncertainty["reason"]
     assert "F_p05_min" not in ev.uncertainty
 
