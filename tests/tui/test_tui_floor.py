@@ -592,3 +592,24 @@ def test_open_low_interval_counts_until_now():
                                            "(typed); still low, counted until now"}]
     closed, running = low_intervals(readings + [Reading(36.0, 121.1, "back")], 121.1, now_min=41.5)
     assert not running and closed[0]["end_min"] == 36.0
+
+
+def test_results_name_a_continuous_systems_affected_entries():
+    # issue 15: the containers a deviation touched, by entry time, worst first
+    from rich.console import Group
+
+    from deviation.evaluate import evaluate_case
+    from deviation.inputs.case import load_case
+    from deviation.tui.widgets.results import affected_lines, plain
+
+    ev = evaluate_case(load_case(REPO / "demo_cases" / "soup_reel_stop.toml"))
+    text = plain(Group(*affected_lines(ev)), 100)
+    held = [a for a in ev.affected_containers if a["disposition"] != "unaffected"]
+    assert f"affected entries ({sum(a['containers'] for a in held):,} containers)" in text
+    worst = min(held, key=lambda a: a["min_F_min"])
+    first = text.splitlines()[1]
+    assert worst["entry_start"].replace("T", " ") in first and f"{worst['containers']:,}" in first
+    assert "unaffected" not in text
+    # a batch retort has none
+    assert affected_lines(evaluate_case(load_case(REPO / "demo_cases" / "chili_temperature_drop.toml"),
+                                        what_if=False)) == []

@@ -679,7 +679,7 @@ class FloorScreen(Screen):
                                           retort_id=dev.retort_id, process_id=loaded.case.process.id,
                                           process_version=proc.version)
             ctx.store.add_evaluation(rid, ev, actor=ctx.actor, role=role, snapshot_seq=1,
-                                     options={"conservative": False, "what_if": True})
+                                     options={"conservative": ev["conservative"], "what_if": True})
         except CaseError as exc:
             self.show_field_errors(check_fields(self.entry, self._process_temperature()).errors)
             self.notify(str(exc), title="Not saved", severity="error")

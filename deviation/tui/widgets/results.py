@@ -101,6 +101,25 @@ def running_head(ev: Evaluation, from_log: bool, running: bool,
     return head + disposition_text(g.get("disposition"))
 
 
+def affected_lines(ev: Evaluation, most: int = 4) -> list[Text]:
+    """A continuous system's affected entry ranges (clock times where known), worst first."""
+    ranges = [a for a in (ev.affected_containers or []) if a.get("disposition") != "unaffected"]
+    if not ranges:
+        return []
+    ranges.sort(key=lambda a: a["min_F_min"])
+    out = [Text(f"affected entries ({sum(a['containers'] for a in ranges):,} containers):", style="bold")]
+    for a in ranges[:most]:
+        start = (a.get("entry_start") or f"{a['entry_start_min']:.1f} min").replace("T", " ")
+        end = (a.get("entry_end") or f"{a['entry_end_min']:.1f} min").replace("T", " ")
+        if start[:11] == end[:11] and start[4:5] == "-":  # same day: the end's clock time only
+            end = end[11:]
+        out.append(Text(f"  {start} – {end}: {a['containers']:,} · F0 ≥ {fmt_F(a['min_F_min'])} min · "
+                        f"{a['disposition']}"))
+    if len(ranges) > most:
+        out.append(Text(f"  … {len(ranges) - most} more range(s): see the record", style="dim"))
+    return out
+
+
 class ResultsPanel(Static):
     """Figures of the latest evaluation; ``generation`` counts the refreshes (for tests)."""
 
@@ -204,8 +223,10 @@ class ResultsPanel(Static):
             basis = "filed cycle + entries" + ("; rest as filed" if running else "")
         if figures.low_running:
             basis += "; ▼ still low (counted until now)"
-        self.update(Group(running_head(ev, from_log, running, figures.process_temperature_C), t,
-                          Text(basis, style="dim")))
+        parts = [running_head(ev, from_log, running, figures.process_temperature_C), t]
+        parts += affected_lines(ev)
+        parts.append(Text(basis, style="dim"))
+        self.update(Group(*parts))
         self.generation += 1
         self.post_message(self.Refreshed(self.generation))
 
