@@ -252,8 +252,9 @@ class HeatPenetration(_Model):
         None, description="Broken heating curve (model 'heating-curve', with break_min): the second "
                           "line's rate factor fh2 [min]")
     break_min: float | None = Field(
-        None, description="Broken heating curve: the break time xbh from the corrected zero of the heat "
-                          "penetration test [min]")
+        None, validation_alias=AliasChoices("break_min", "xbh_min", "xbh"),
+        description="Broken heating curve: the break time xbh from the corrected zero of the heat "
+                    "penetration test [min]; xbh_min and xbh are accepted as the trade's names")
     break_temperature_C: TemperatureC | None = Field(
         None, description="Broken heating curve: the cold-spot temperature at which the product "
                           "thickens, read from the heat penetration test at the break [°C]")

@@ -169,3 +169,11 @@ def test_a_product_broken_from_the_start_heats_no_faster_than_the_second_line():
     second = evaluate_case(_pudding(slow), what_if=False)
     # rises after the break on the thickened lag factor (>= jh): never above
     assert ev.model_F_min <= second.model_F_min * (1.0 + 1e-6)
+
+
+@pytest.mark.parametrize("name", ["xbh", "xbh_min"])
+def test_the_trades_name_for_the_break_time_is_accepted(name):
+    data = _case_data(break_min=None)
+    hp = {k: v for k, v in data["process"]["heat_penetration"].items() if v is not None}
+    data["process"]["heat_penetration"] = {**hp, name: 12.0}
+    assert parse_case(data).process.heat_penetration.break_min == 12.0
