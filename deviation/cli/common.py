@@ -1,4 +1,5 @@
-"""Helpers every command group shares: JSON and rich output, who is acting, the store, options."""
+"""Helpers every command group shares: JSON and rich output, who is acting, the store, options,
+and user text shown as data (never as markup)."""
 
 from __future__ import annotations
 
@@ -27,13 +28,33 @@ def print_json(obj: Any, *, ensure_ascii: bool = False) -> None:
 
 
 def make_console():
+    """A rich console for the commands' output; ``:name:`` in user text stays as typed."""
     from rich.console import Console
 
-    return Console()
+    return Console(emoji=False)
+
+
+def esc(value: Any, *, one_line: bool = True) -> str:
+    """User text for a rich markup string: control and direction characters made visible
+    (:func:`deviation.records.text.visible`), then every ``[`` escaped, so it prints literally."""
+    from rich.markup import escape
+
+    from deviation.records.text import visible
+
+    return escape(visible(value, one_line=one_line))
+
+
+def plain(value: Any, *, one_line: bool = True, style: str = ""):
+    """User text as a rich ``Text`` (a table cell, a panel line): never read as markup."""
+    from rich.text import Text
+
+    from deviation.records.text import visible
+
+    return Text(visible(value, one_line=one_line), style=style)
 
 
 def print_caution(console) -> None:
-    console.print(f"[dim]{caution_text()}[/dim]")
+    console.print(f"[dim]{esc(caution_text())}[/dim]")
 
 
 def actor_of(args) -> str:
@@ -53,7 +74,6 @@ def store_of(args):
     from deviation.records.store import open_store
 
     return open_store(args.db)
-
 
 
 def add_common_options(p: argparse.ArgumentParser, *, acts: bool) -> None:
@@ -78,3 +98,17 @@ def usage_handler(parser: argparse.ArgumentParser) -> Callable[[argparse.Namespa
         return 2
 
     return handler
+
+
+def after_write(what: str, show: Callable[[], int]) -> int:
+    """Show what a write did; the write has committed, so a failure to *show* it (a lost
+    connection, a broken terminal) is reported in one line and is not an error of the write."""
+    try:
+        return show()
+    except BrokenPipeError:
+        return 0
+    except Exception as exc:  # noqa: BLE001 - never a traceback after a write that succeeded
+        msg = exc.message if isinstance(exc, DeviationError) else f"{type(exc).__name__}: {exc}"
+        print(f"{what} was written; it could not be shown ({msg}). Check it with: deviation record show",
+              file=sys.stderr)
+        return 0

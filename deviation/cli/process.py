@@ -11,7 +11,9 @@ from deviation.cli.common import (
     actor_of,
     add_common_options,
     caution_text,
+    esc,
     make_console,
+    plain,
     print_caution,
     print_json,
     role_of,
@@ -34,15 +36,15 @@ def _cmd_add(args) -> int:
         return 0
     c = make_console()
     what = "filed" if filed.new_version else "already filed"
-    c.print(f"[bold]{entry.process_id}[/bold] version [bold]{entry.version}[/bold] {what}: "
-            f"{entry.product}")
+    c.print(f"[bold]{esc(entry.process_id)}[/bold] version [bold]{entry.version}[/bold] {what}: "
+            f"{esc(entry.product)}")
     c.print(f"  scheduled-process F0 (the process's own model, filed cycle) "
             f"{filed.scheduled_F_min:.2f} min; filed target {entry.target_F_min:.2f} min")
     if filed.warning:
-        c.print(f"  [bold yellow]⚠ warning[/bold yellow]: {filed.warning}")
+        c.print(f"  [bold yellow]⚠ warning[/bold yellow]: {esc(filed.warning)}")
     if entry.reason:
-        c.print(f"  reason: {entry.reason}")
-    c.print(f"  cases name it as process_ref = \"{entry.process_id}\" (latest) or \"{entry.ref}\"")
+        c.print(f"  reason: {esc(entry.reason)}")
+    c.print(f"  cases name it as process_ref = \"{esc(entry.process_id)}\" (latest) or \"{esc(entry.ref)}\"")
     print_caution(c)
     return 0
 
@@ -73,8 +75,9 @@ def _cmd_list(args) -> int:
         if r.scheduled_F_min < r.target_F_min:
             F_txt = f"[yellow]{F_txt} ⚠[/yellow]"
         state = "active" if r.active else f"retired ({r.retired.reason})"
-        t.add_row(r.process_id, str(r.version), str(r.product), f"{p.get('process_time_min', '?')} min at {temp_txt}",
-                  F_txt, f"{r.filed_utc[:10]} by {r.actor}", state)
+        t.add_row(plain(r.process_id), str(r.version), plain(r.product),
+                  plain(f"{p.get('process_time_min', '?')} min at {temp_txt}"),
+                  F_txt, plain(f"{r.filed_utc[:10]} by {r.actor}"), plain(state))
     c.print(t)
     return 0
 
@@ -94,13 +97,14 @@ def _cmd_show(args) -> int:
 
     c = make_console()
     state = "[green]active[/green]" if entry.active else (
-        f"[yellow]retired[/yellow] on {entry.retired.retired_utc[:10]} by {entry.retired.actor}: "
-        f"{entry.retired.reason}")
-    head = (f"{entry.product}\nversion [bold]{entry.version}[/bold] of {entry.latest_version}, "
-            f"filed {entry.filed_utc} by {entry.actor} ({entry.role}); {state}\n"
+        f"[yellow]retired[/yellow] on {entry.retired.retired_utc[:10]} by {esc(entry.retired.actor)}: "
+        f"{esc(entry.retired.reason)}")
+    head = (f"{esc(entry.product)}\nversion [bold]{entry.version}[/bold] of {entry.latest_version}, "
+            f"filed {entry.filed_utc} by {esc(entry.actor)} ({esc(entry.role)}); {state}\n"
             f"scheduled-process F0 {entry.scheduled_F_min:.2f} min, target {entry.target_F_min:.2f} min"
-            + (f"\nreason: {entry.reason}" if entry.reason else "") + f"\nsha256 {entry.sha256}")
-    c.print(Panel(head, title=f"Filed process {entry.process_id}"))
+            + (f"\nreason: {esc(entry.reason)}" if entry.reason else "")
+            + f"\nsha256 {entry.sha256} (rechecked against the store's chain on this read)")
+    c.print(Panel(head, title=f"Filed process {esc(entry.process_id)}"))
     for line in _toml_lines(entry.process):
         c.print(line, markup=False, highlight=False)
     c.print("versions: " + ", ".join(
@@ -140,8 +144,8 @@ def _cmd_retire(args) -> int:
         print_json({"id": args.id, "retired": r.to_dict()})
         return 0
     c = make_console()
-    c.print(f"[bold]{args.id}[/bold] retired (every version up to {r.up_to_version}): {r.reason}")
-    c.print(f"  '{args.id}' no longer resolves; '{args.id}@N' still reads version N for old cases")
+    c.print(f"[bold]{esc(args.id)}[/bold] retired (every version up to {r.up_to_version}): {esc(r.reason)}")
+    c.print(f"  '{esc(args.id)}' no longer resolves; '{esc(args.id)}@N' still reads version N for old cases")
     return 0
 
 

@@ -19,10 +19,9 @@ from sqlalchemy import exc as sa_exc
 from deviation import __version__
 from deviation.errors import DeviationError, StoreError
 from deviation.records.chains import utc_now
+from deviation.records.migrate import MIGRATIONS, SCHEMA_VERSION
 from deviation.records.schema import (
     APP_NAME,
-    MIGRATIONS,
-    SCHEMA_VERSION,
     schema_version_t,
     store_info_t,
 )

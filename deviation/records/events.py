@@ -32,6 +32,10 @@ class Event:
     origin: str | None = None
     event_id: str | None = None  # the append's idempotency key (not hashed; None for imports)
 
+    @property
+    def imported(self) -> bool:
+        return self.origin is not None
+
     def to_dict(self, *, with_payload: bool = True) -> dict:
         d = asdict(self)
         if not with_payload:
@@ -41,7 +45,7 @@ class Event:
 
 @dataclass(frozen=True)
 class RecordSummary:
-    """A row of ``list_records``."""
+    """A row of ``list_records`` (read from the derived table ``record_summaries``)."""
 
     id: str
     lot: str
@@ -52,14 +56,35 @@ class RecordSummary:
     state: str
     events: int
     last_utc: str
+    plant: str | None = None
+    guidance: str | None = None  # the latest evaluation's guidance disposition
+    delivered_F_min: float | None = None
+    target_F_min: float | None = None
+    held: bool = False  # the lot is on hold now
+    decision: str | None = None  # the process authority's decision in force (code)
+    decision_words: str | None = None
+    decided_by: str | None = None
+    decided_utc: str | None = None
+    superseded: int = 0  # dispositions superseded by a later one
+    imported: bool = False  # some event came from another store (see its origin)
+
+    def __post_init__(self) -> None:  # booleans as booleans, whatever the database returned
+        object.__setattr__(self, "held", bool(self.held))
+        object.__setattr__(self, "imported", bool(self.imported))
 
     def to_dict(self) -> dict:
-        return asdict(self)
+        return {k: getattr(self, k) for k in self.__dataclass_fields__}
 
 
-@dataclass(frozen=True)
+@dataclass
 class RecordView:
-    """A record as it stands now, from its events."""
+    """A record as it stands now, from its events.
+
+    ``stored_evaluation`` is the latest evaluation as stored (figures, flags, guidance; since
+    compact events, its arrays only as a digest). ``evaluation`` is the full evaluation: the
+    stored one with the arrays recomputed from the record's snapshot on first use and checked
+    against the digest (``arrays_check`` then says how they compare).
+    """
 
     id: str
     lot: str
@@ -70,33 +95,66 @@ class RecordView:
     state: str
     snapshot: dict
     snapshot_seq: int
-    evaluation: dict | None  # the latest evaluation JSON
-    evaluation_event: dict | None  # its event payload without the evaluation (engine, rules, ...)
+    stored_evaluation: dict | None  # the latest evaluation JSON as stored
+    evaluation_event: dict | None  # its event payload without the evaluation (engine, rules, arrays, ...)
     evaluation_current: bool  # the latest evaluation is of the latest snapshot
     hold: dict | None  # {"held", "placed_by", "placed_utc", "reason", ...} of the latest hold
-    disposition: dict | None
+    disposition: dict | None  # the disposition in force ({"decision", "words", "reason", "by", ...})
     notes: list[dict]
     events: list[Event]
+    superseded: list[dict] = field(default_factory=list)  # dispositions superseded, oldest first
+    origins: list[str] = field(default_factory=list)  # where imported events came from
+    evaluated_snapshot: dict | None = None  # the snapshot the latest evaluation was made of
+    arrays_check: dict | None = None  # set when ``evaluation`` recomputed the arrays
+    _full: dict | None = field(default=None, repr=False)
+
+    @property
+    def evaluation(self) -> dict | None:
+        """The latest evaluation with its arrays (recomputed once, checked against the digest)."""
+        if self.stored_evaluation is None:
+            return None
+        if self._full is None:
+            from deviation.records.arrays import recompute
+
+            payload = dict(self.evaluation_event or {}, evaluation=self.stored_evaluation)
+            self._full, self.arrays_check = recompute(payload, self.evaluated_snapshot or self.snapshot)
+        return self._full
 
     @property
     def head_hash(self) -> str:
         return self.events[-1].hash
 
-    def to_dict(self, *, event_payloads: bool = False) -> dict:
+    @property
+    def imported(self) -> bool:
+        return bool(self.origins)
+
+    def to_dict(self, *, event_payloads: bool = False, arrays: bool = False) -> dict:
+        """JSON of the record: the evaluation as stored, or with ``arrays`` the full one (and
+        ``arrays_check``)."""
         d = {k: getattr(self, k) for k in (
             "id", "lot", "retort_id", "process_id", "process_version", "created_utc", "state",
-            "snapshot_seq", "evaluation_current", "hold", "disposition", "notes")}
+            "snapshot_seq", "evaluation_current", "hold", "disposition", "superseded", "notes")}
+        d["imported"] = self.imported
+        d["origins"] = [origin_info(o) for o in self.origins]
         d["head_hash"] = self.head_hash
         d["events"] = [event_summary(e, with_payload=event_payloads) for e in self.events]
         d["evaluation_event"] = self.evaluation_event
-        d["evaluation"] = self.evaluation
+        d["evaluation"] = self.evaluation if arrays else self.stored_evaluation
+        if arrays:
+            d["arrays_check"] = self.arrays_check
         d["snapshot"] = self.snapshot
         return d
 
 
 @dataclass(frozen=True)
 class VerifyResult:
-    """What ``verify`` found: ``first_broken`` is ``{record_id, seq, kind, global_seq, reason}``."""
+    """What ``verify`` found: ``first_broken`` is ``{record_id, seq, kind, global_seq, reason}``.
+
+    ``signatures``: whether the keyed hashes were checked (the key was found) and from which
+    store position events are keyed; ``anchors``: the anchor file and how many noted heads were
+    checked; ``expected_head``: the ``--expect-head`` check; ``library``: problems of the filed
+    process library; ``summaries``: the derived summary table checked (and rebuilt if it differed).
+    """
 
     ok: bool
     checked_events: int
@@ -104,6 +162,12 @@ class VerifyResult:
     first_broken: dict | None = None
     broken_count: int = 0
     head: dict | None = None  # {"global_seq", "global_hash"}: note it to detect a truncated tail
+    problems: list[dict] = field(default_factory=list)  # every problem (the first 100)
+    signatures: dict | None = None
+    anchors: dict | None = None
+    expected_head: dict | None = None
+    library: dict | None = None
+    summaries: dict | None = None
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -120,7 +184,7 @@ class ImportResult:
         return asdict(self)
 
 
-_SMALL_KINDS = ("hold-placed", "hold-released", "disposition", "note")
+_SMALL_KINDS = ("hold-placed", "hold-released", "disposition", "note", "process-filed", "process-retired")
 
 
 def event_summary(e: Event, *, with_payload: bool = False) -> dict:
@@ -142,17 +206,83 @@ def describe_event(e: Event) -> str:
         ev = p.get("evaluation") or {}
         g = ev.get("guidance") or {}
         F = ev.get("delivered_F_min")
-        Ftxt = f"F0 {F:.3g} min" if isinstance(F, (int, float)) else "F0 ?"
+        Ftxt = f"F0 {F:.3g} min" if isinstance(F, (int, float)) and not isinstance(F, bool) else "F0 ?"
         return (f"{Ftxt}, guidance {g.get('disposition', '?')} "
                 f"(engine {p.get('engine_version')}, rules {str(p.get('rule_set_sha256'))[:12]})")
-    if e.kind in ("hold-placed", "hold-released"):
-        return p.get("reason", "")
+    if e.kind == "hold-placed":
+        return str(p.get("reason", ""))
+    if e.kind == "hold-released":
+        cites = f" (citing the disposition, event {p['decision_seq']})" if p.get("decision_seq") else ""
+        return f"{p.get('reason', '')}{cites}"
     if e.kind == "disposition":
         res = f"; result: {p['result']}" if p.get("result") else ""
-        return f"{p.get('decision')}: {p.get('reason')}{res}"
+        sup = f" (supersedes event {p['supersedes']})" if p.get("supersedes") else ""
+        return f"{roles.decision_words(p)}: {p.get('reason')}{res}{sup}"
     if e.kind == "note":
-        return p.get("text", "")
+        return str(p.get("text", ""))
+    if e.kind == "process-filed":
+        return (f"process {p.get('process_id')} version {p.get('version')} filed, sha256 "
+                f"{str(p.get('sha256'))[:12]}…" + (" (filed before the library was chained)" if p.get("migrated") else ""))
+    if e.kind == "process-retired":
+        return f"process {p.get('process_id')} retired up to version {p.get('up_to_version')}: {p.get('reason')}"
     return ""
+
+
+def disposition_summary(view: RecordView, *, decision: str, decision_text: str | None, reason: str,
+                        result: str | None, supersedes: int | None, actor: str, role: str) -> list[str]:
+    """What a disposition will write, in lines of plain text (the confirmation of every face)."""
+    from deviation.records.text import one_line
+
+    def num(x) -> str:
+        return f"{x:.3f}" if isinstance(x, (int, float)) and not isinstance(x, bool) else "?"
+
+    words = roles.decision_words({"decision": decision, "decision_text": decision_text})
+    ev = view.stored_evaluation or {}
+    g = ev.get("guidance") or {}
+    lines = [f"Disposition of record {view.id}: lot {one_line(view.lot)}, retort {one_line(view.retort_id)}, "
+             f"process {one_line(view.process_id)}",
+             f"  decision:  {one_line(words)}",
+             f"  reason:    {one_line(reason)}"]
+    if result:
+        lines.append(f"  result:    {one_line(result)}")
+    if supersedes:
+        old = view.disposition or {}
+        lines.append(f"  supersedes event {supersedes}: {one_line(old.get('words'))} by {one_line(old.get('by'))} "
+                     f"at {old.get('utc')} ({one_line(old.get('reason'))}); both stay on record")
+    if g:
+        lines.append(f"  guidance on record: {one_line(g.get('disposition'))}, delivered F0 "
+                     f"{num(ev.get('delivered_F_min'))} of {num(ev.get('target_F_min'))} min")
+    if decision == "release-after-evaluation":
+        lines.append("  the hold is lifted by this disposition")
+    lines.append(f"  by {one_line(actor)} ({one_line(role)}); written once, corrected only by a superseding "
+                 "disposition")
+    return lines
+
+
+def origin_info(origin: str | None) -> dict | None:
+    """An imported event's origin as a dict (``{"import", "utc", "actor", "role", "source_store",
+    "signatures"}``); None for an event written here."""
+    if origin is None:
+        return None
+    try:
+        d = json.loads(origin)
+    except ValueError:
+        return {"text": origin}
+    return d if isinstance(d, dict) else {"text": origin}
+
+
+def origin_text(origin: str | None) -> str:
+    """An imported event's origin in words ("" for an event written here)."""
+    d = origin_info(origin)
+    if d is None:
+        return ""
+    if "text" in d and len(d) == 1:
+        return f"imported ({d['text']})"
+    sig = {"verified": "signatures verified with the source store's key",
+           "not-verified": "signatures not verified (the source store's key was not given)",
+           "sha256": "unkeyed SHA-256 hashes, checked"}.get(d.get("signatures"), "signatures not verified")
+    return (f"imported {str(d.get('utc', ''))[:10]} from store {d.get('source_store') or '?'} by "
+            f"{d.get('actor')} ({d.get('role')}); {sig}")
 
 
 def _text(payload: dict, key: str, kind: str, *, required: bool = True) -> None:
@@ -163,8 +293,18 @@ def _text(payload: dict, key: str, kind: str, *, required: bool = True) -> None:
         raise StoreError(f"a '{kind}' event needs a non-empty text '{key}'")
 
 
-def check_payload(kind: str, payload: Any) -> None:
-    """Refuse a payload that does not have what its kind needs."""
+def _seq(payload: dict, key: str, kind: str) -> None:
+    value = payload.get(key)
+    if value is not None and (not isinstance(value, int) or isinstance(value, bool) or value < 1):
+        raise StoreError(f"a '{kind}' event's '{key}' must be an event number (1 or more), found {value!r}")
+
+
+def check_payload(kind: str, payload: Any, *, legacy: bool = False) -> None:
+    """Refuse a payload that does not have what its kind needs.
+
+    ``legacy``: as written before the fixed list of decisions (an import of old records): a
+    decision may be one of the words the list accepts as typed (``release``).
+    """
     if kind not in roles.EVENT_KINDS:
         raise StoreError(f"unknown event kind '{kind}' (kinds: {', '.join(roles.EVENT_KINDS)})")
     if not isinstance(payload, dict):
@@ -178,12 +318,28 @@ def check_payload(kind: str, payload: Any) -> None:
         if not isinstance(payload.get("evaluation"), dict):
             raise StoreError("an 'evaluated' event needs the 'evaluation' JSON (an object)")
         _text(payload, "engine_version", kind)
+        arrays = payload.get("arrays")
+        if arrays is not None and not (isinstance(arrays, dict) and isinstance(arrays.get("sha256"), str)):
+            raise StoreError("an 'evaluated' event's 'arrays' must be the digest of the arrays (with 'sha256')")
+        _seq(payload, "snapshot_seq", kind)
     elif kind in ("hold-placed", "hold-released"):
         _text(payload, "reason", kind)
+        if kind == "hold-released":
+            _seq(payload, "decision_seq", kind)
     elif kind == "disposition":
         _text(payload, "decision", kind)
         _text(payload, "reason", kind)
+        code = roles.decision_code(payload["decision"]) if legacy else (
+            payload["decision"] if payload["decision"] in roles.DECISIONS else None)
+        if code is None:
+            raise StoreError(f"decision '{payload['decision']}' is not one of the dispositions: "
+                             f"{', '.join(roles.DECISIONS)} (other: give the decision in words)")
+        if code == "other":
+            _text(payload, "decision_text", kind)
+        else:
+            _text(payload, "decision_text", kind, required=False)
         _text(payload, "result", kind, required=False)
+        _seq(payload, "supersedes", kind)
     elif kind == "note":
         _text(payload, "text", kind)
 

@@ -14,6 +14,13 @@ store's ``schema_version``. They are created on first use (``checkfirst``).
 
 Only a process authority files or retires a process (21 CFR 113.83: scheduled processes are
 established by persons with expert knowledge of thermal processing); everyone may read.
+
+In the chain: every filing and retirement is also an event of the store-wide hash chain (record
+``LIBRARY``, kinds ``process-filed`` and ``process-retired``, signed under the store's key), whose
+payload holds the filing's SHA-256. Every read of a filed process recomputes the SHA-256 of its
+text and checks it against that event (and the event's own signature), and retirements are read
+from the chain; a process edited in the database is refused with the reason, and ``verify``
+reports it.
 """
 
 from __future__ import annotations
@@ -30,7 +37,9 @@ from pydantic import ValidationError
 
 from deviation import __version__
 from deviation.errors import CaseError, PermissionDenied, StoreError
-from deviation.records.chains import canonical_json, utc_now
+from deviation.records import ledger
+from deviation.records.chains import canonical_json, event_hash, utc_now
+from deviation.records.schema import LIBRARY_ID, events_t, records_t
 
 FILE_ACTION = "file or retire a scheduled process"
 FILER_ROLE = "process-authority"
@@ -339,24 +348,25 @@ def add_process(store, process: dict | str | os.PathLike, *, actor: str, role: s
     digest = _sha(text)
     ensure_library(store)
 
-    def write(conn: sa.Connection) -> Filed:
+    def write(conn: sa.Connection, rows: list) -> Filed:
         last = conn.execute(sa.select(processes_t.c.version, processes_t.c.sha256)
                             .where(processes_t.c.process_id == pid)
                             .order_by(processes_t.c.version.desc()).limit(1)).first()
-        retired_to = conn.execute(sa.select(sa.func.max(retirements_t.c.up_to_version))
-                                  .where(retirements_t.c.process_id == pid)).scalar() or 0
+        retired_to = _chain(conn, store.signer).retired_to(pid)
         if last is not None and last.sha256 == digest and last.version > retired_to:
             return Filed(pid, last.version, F,
                          f"identical to version {last.version} already filed: no new version", False)
         version = (last.version if last else 0) + 1
-        # Append-only: a filing is INSERTed, never changed or removed.
-        conn.execute(processes_t.insert().values(
-            process_id=pid, version=version, filed_utc=utc_now(), actor=actor, role=role,
-            reason=reason, source=source, process=text, sha256=digest, scheduled_F_min=F,
-            target_F_min=target))
+        values = dict(process_id=pid, version=version, filed_utc=utc_now(), actor=actor, role=role,
+                      reason=reason, source=source, process=text, sha256=digest, scheduled_F_min=F,
+                      target_F_min=target)
+        # Append-only: a filing is INSERTed, never changed or removed; and chained.
+        conn.execute(processes_t.insert().values(**values))
+        rows.append(append_library_event(conn, store.signer, "process-filed", filing_payload(values),
+                                         actor=actor, role=role, utc=values["filed_utc"], source=store.name))
         return Filed(pid, version, F, warning)
 
-    return store._retrying(write)
+    return store.write_anchored(write, idempotent=False)
 
 
 def retire_process(store, process_id: str, *, reason: str, actor: str, role: str) -> Retirement:
@@ -371,20 +381,109 @@ def retire_process(store, process_id: str, *, reason: str, actor: str, role: str
         raise CaseError(f"retiring process {process_id} needs a reason (--reason TEXT)")
     ensure_library(store)
 
-    def write(conn: sa.Connection) -> Retirement:
+    def write(conn: sa.Connection, rows: list) -> Retirement:
         versions = _versions(conn, process_id)
         if not versions:
             raise CaseError(_unknown_id(conn, process_id))
-        retired_to = conn.execute(sa.select(sa.func.max(retirements_t.c.up_to_version))
-                                  .where(retirements_t.c.process_id == process_id)).scalar() or 0
+        retired_to = _chain(conn, store.signer).retired_to(process_id)
         if retired_to >= versions[-1]:
             raise CaseError(f"process '{process_id}' is already retired (every version up to "
                             f"{retired_to})")
         r = Retirement(versions[-1], utc_now(), actor, role, reason.strip())
         conn.execute(retirements_t.insert().values(process_id=process_id, **r.to_dict()))
+        rows.append(append_library_event(
+            conn, store.signer, "process-retired", retirement_payload(process_id, r.up_to_version, r.reason),
+            actor=actor, role=role, utc=r.retired_utc, source=store.name))
         return r
 
-    return store._retrying(write)
+    return store.write_anchored(write, idempotent=False)
+
+
+# ---------------------------------------------------------------------------------------------
+# The library in the store-wide chain
+
+
+def filing_payload(values, *, migrated: bool = False) -> dict:
+    """The payload of a ``process-filed`` event: what identifies the filing, with its SHA-256."""
+    p = {k: values[k] for k in ("process_id", "version", "sha256", "scheduled_F_min", "target_F_min",
+                                "reason", "source", "filed_utc")}
+    if migrated:
+        p["migrated"] = True  # filed before the library was chained: SHA-256 as found at the upgrade
+    return p
+
+
+def retirement_payload(process_id: str, up_to_version: int, reason: str, *, retired_utc: str | None = None,
+                       migrated: bool = False) -> dict:
+    p = {"process_id": process_id, "up_to_version": up_to_version, "reason": reason}
+    if migrated:
+        p.update(migrated=True, retired_utc=retired_utc)
+    return p
+
+
+def append_library_event(conn: sa.Connection, signer, kind: str, payload: dict, *, actor: str, role: str,
+                         utc: str, source: str | None = None) -> dict:
+    """Chain one library event (creating the ``LIBRARY`` pseudo-record on first use)."""
+    if conn.execute(sa.select(records_t.c.id).where(records_t.c.id == LIBRARY_ID)).first() is None:
+        conn.execute(records_t.insert().values(id=LIBRARY_ID, lot="", retort_id="", process_id="",
+                                               process_version=None, created_utc=utc))
+    return ledger.insert_event(conn, signer, record_id=LIBRARY_ID, kind=kind, utc=utc, actor=actor, role=role,
+                               payload_json=canonical_json(payload), payload=payload, source=source)
+
+
+@dataclass
+class _Chain:
+    """The library's chain events, read once: filings by (id, version), retirements by id."""
+
+    filed: dict[tuple[str, int], dict]
+    retired: dict[str, list[Retirement]]
+    problems: list[str]
+
+    def retired_to(self, process_id: str) -> int:
+        rets = self.retired.get(process_id) or []
+        return max((r.up_to_version for r in rets), default=0)
+
+
+def _chain(conn: sa.Connection, signer=None) -> _Chain:
+    """The library events of the store-wide chain; ``problems``: events whose signature fails."""
+    import json
+
+    rows = conn.execute(sa.select(events_t).where(events_t.c.record_id == LIBRARY_ID)
+                        .order_by(events_t.c.seq)).mappings().all()
+    filed: dict[tuple[str, int], dict] = {}
+    retired: dict[str, list[Retirement]] = {}
+    problems = []
+    key = getattr(signer, "key", None)
+    for r in rows:
+        if key is not None and r["hash"] != event_hash(r["record_id"], r["seq"], r["kind"], r["utc"], r["actor"],
+                                                       r["role"], r["payload"], r["prev_hash"], key):
+            problems.append(f"library event {r['seq']} ({r['kind']}) does not match its signature")
+            continue
+        try:
+            p = json.loads(r["payload"])
+        except ValueError:
+            problems.append(f"library event {r['seq']} is not JSON")
+            continue
+        if r["kind"] == "process-filed":
+            filed[(p.get("process_id"), p.get("version"))] = dict(p, event_seq=r["seq"])
+        elif r["kind"] == "process-retired":
+            retired.setdefault(p.get("process_id"), []).append(
+                Retirement(p.get("up_to_version"), p.get("retired_utc") or r["utc"], r["actor"], r["role"],
+                           p.get("reason")))
+    return _Chain(filed, retired, problems)
+
+
+def check_filing(row, chain: _Chain) -> str | None:
+    """Why a processes row is not the filing the chain holds (None when it is)."""
+    pid, ver = row["process_id"], row["version"]
+    text_sha = _sha(row["process"])
+    event = chain.filed.get((pid, ver))
+    if event is None:
+        return (f"process '{pid}' version {ver} is not in the store's chain (added to the database "
+                "behind the tool's back)")
+    if text_sha != event.get("sha256") or row["sha256"] != event.get("sha256"):
+        return (f"process '{pid}' version {ver} was changed after it was filed: its text has SHA-256 "
+                f"{text_sha}, the filing (chain event {event['event_seq']}) has {event.get('sha256')}")
+    return None
 
 
 # ---------------------------------------------------------------------------------------------
@@ -409,11 +508,8 @@ def _unknown_id(conn: sa.Connection, process_id: str) -> str:
     return f"no process '{process_id}' is filed in the library ({known})"
 
 
-def _retirements(conn: sa.Connection, process_id: str) -> list[Retirement]:
-    rows = conn.execute(sa.select(retirements_t).where(retirements_t.c.process_id == process_id)
-                        .order_by(retirements_t.c.seq)).mappings().all()
-    return [Retirement(r["up_to_version"], r["retired_utc"], r["actor"], r["role"], r["reason"])
-            for r in rows]
+def _retirements(chain: _Chain, process_id: str) -> list[Retirement]:
+    return list(chain.retired.get(process_id) or [])
 
 
 def _covering(retirements: list[Retirement], version: int) -> Retirement | None:
@@ -425,9 +521,12 @@ def _covering(retirements: list[Retirement], version: int) -> Retirement | None:
     return last if version <= last.up_to_version else None
 
 
-def _view(row, retirements: list[Retirement], latest: int) -> FiledProcess:
+def _view(row, retirements: list[Retirement], latest: int, chain: _Chain) -> FiledProcess:
     import json
 
+    why = check_filing(row, chain)
+    if why:
+        raise StoreError(f"{why}; the filed process is not used. Run deviation verify")
     return FiledProcess(
         process_id=row["process_id"], version=row["version"], filed_utc=row["filed_utc"],
         actor=row["actor"], role=row["role"], reason=row["reason"], source=row["source"],
@@ -445,10 +544,8 @@ def list_processes(store, include_retired: bool = False, *, all_versions: bool =
     with store._read() as conn:
         rows = conn.execute(sa.select(processes_t).order_by(processes_t.c.process_id,
                                                             processes_t.c.version)).mappings().all()
-        retired: dict[str, list[Retirement]] = {}
-        for r in conn.execute(sa.select(retirements_t).order_by(retirements_t.c.seq)).mappings():
-            retired.setdefault(r["process_id"], []).append(
-                Retirement(r["up_to_version"], r["retired_utc"], r["actor"], r["role"], r["reason"]))
+        chain = _chain(conn, store.signer)
+    retired = chain.retired
     latest: dict[str, int] = {}
     for r in rows:
         latest[r["process_id"]] = r["version"]
@@ -457,7 +554,7 @@ def list_processes(store, include_retired: bool = False, *, all_versions: bool =
         pid = r["process_id"]
         if not all_versions and r["version"] != latest[pid]:
             continue
-        view = _view(r, retired.get(pid, []), latest[pid])
+        view = _view(r, retired.get(pid, []), latest[pid], chain)
         if view.retired is not None and not include_retired:
             continue
         out.append(view)
@@ -481,8 +578,8 @@ def get_process(store, process_id: str, version: int | None = None) -> FiledProc
                             f"{', '.join(map(str, versions))})")
         row = conn.execute(sa.select(processes_t).where(processes_t.c.process_id == process_id,
                                                         processes_t.c.version == version)).mappings().one()
-        rets = _retirements(conn, process_id)
-    return _view(row, rets, versions[-1])
+        chain = _chain(conn, store.signer)
+    return _view(row, _retirements(chain, process_id), versions[-1], chain)
 
 
 def history(store, process_id: str) -> dict:
@@ -492,7 +589,7 @@ def history(store, process_id: str) -> dict:
         versions = _versions(conn, process_id)
         if not versions:
             raise CaseError(_unknown_id(conn, process_id))
-        rets = _retirements(conn, process_id)
+        rets = _retirements(_chain(conn, store.signer), process_id)
     return {"versions": [get_process(store, process_id, v).to_dict(with_process=False) for v in versions],
             "retirements": [r.to_dict() for r in rets]}
 
@@ -519,7 +616,7 @@ def lookup(store, ref: str) -> FiledProcess:
         versions = _versions(conn, pid)
         if not versions:
             raise CaseError(f"process_ref '{ref}': {_unknown_id(conn, pid)}")
-        rets = _retirements(conn, pid)
+        rets = _retirements(_chain(conn, store.signer), pid)
     filed = f"filed versions: {', '.join(map(str, versions))}"
     if version is None:
         version = versions[-1]
@@ -586,4 +683,33 @@ def load_case_with_ref(path: str | os.PathLike, store=None):
 __all__ = ["add_process", "retire_process", "list_processes", "get_process", "history", "lookup",
            "resolve", "resolver", "parse_ref", "load_case_with_ref", "read_process_file",
            "process_table", "validate_process", "ensure_library", "FiledProcess", "Filed",
-           "Retirement", "ResolvedRef", "LibraryResolver", "LIBRARY_SCHEMA_VERSION"]
+           "Retirement", "ResolvedRef", "LibraryResolver", "LIBRARY_SCHEMA_VERSION", "filing_payload",
+           "retirement_payload", "append_library_event", "check_filing", "library_problems"]
+
+
+def library_problems(conn: sa.Connection, signer) -> list[str]:
+    """What ``verify`` finds wrong in the library: rows that are not the chained filings, chain
+    filings with no row, retirements that differ from the chain's (for ``Store.verify``)."""
+    names = set(sa.inspect(conn).get_table_names())
+    chain = _chain(conn, signer)
+    problems = list(chain.problems)
+    if "processes" not in names:
+        return problems + [f"process '{pid}' version {v} is filed in the chain but the library has no table"
+                           for pid, v in chain.filed]
+    seen = set()
+    for row in conn.execute(sa.select(processes_t)).mappings().all():
+        seen.add((row["process_id"], row["version"]))
+        why = check_filing(row, chain)
+        if why:
+            problems.append(why)
+    for pid, v in chain.filed:
+        if (pid, v) not in seen:
+            problems.append(f"process '{pid}' version {v} is filed in the chain but missing from the library")
+    table_rets: dict[str, list[tuple]] = {}
+    for r in conn.execute(sa.select(retirements_t).order_by(retirements_t.c.seq)).mappings():
+        table_rets.setdefault(r["process_id"], []).append((r["up_to_version"], r["reason"]))
+    chain_rets = {pid: [(r.up_to_version, r.reason) for r in rets] for pid, rets in chain.retired.items()}
+    for pid in sorted(set(table_rets) | set(chain_rets)):
+        if table_rets.get(pid, []) != chain_rets.get(pid, []):
+            problems.append(f"the retirements of process '{pid}' in the library differ from those in the chain")
+    return problems

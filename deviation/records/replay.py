@@ -14,7 +14,6 @@ from pathlib import Path
 from typing import Any, Callable, Sequence
 
 from deviation.errors import DeviationError
-from deviation.guidance import load_rule_set
 
 # Replay tolerances: F values (and other minute-valued results) agree within
 # rel 1e-6 + abs 1e-9 min; probabilities, counts and log reductions within rel 1e-6 + abs 1e-12
@@ -32,19 +31,21 @@ TOLERANCES = {"F_rtol": F_RTOL, "F_atol_min": F_ATOL, "other_rtol": P_RTOL, "oth
 
 def rule_set_from(paths: Sequence[str | Path] | None):
     """The default rules layered with the plant's rule files (``--rules``)."""
+    from deviation.guidance import load_rule_set
 
     return load_rule_set([Path(p) for p in (paths or [])])
 
 
 def evaluate_into(store, record_id: str, snapshot: dict, snapshot_seq: int, *, conservative: bool,
-                  rule_paths: Sequence[str] | None, actor: str, role: str) -> dict:
-    """Evaluate a record's snapshot and append the ``evaluated`` event; returns the evaluation JSON."""
+                  rule_paths: Sequence[str] | None, actor: str, role: str, event_id: str | None = None) -> dict:
+    """Evaluate a record's snapshot and append the ``evaluated`` event (stored compact); returns
+    the full evaluation JSON. ``event_id``: the append's idempotency key."""
     from deviation.evaluate import evaluate_snapshot
 
     ev = evaluate_snapshot(snapshot, conservative=conservative,
                            rule_set=rule_set_from(rule_paths)).model_dump(mode="json")
     store.add_evaluation(record_id, ev, actor=actor, role=role, snapshot_seq=snapshot_seq,
-                         options={"conservative": bool(conservative), "what_if": True})
+                         options={"conservative": bool(conservative), "what_if": True}, event_id=event_id)
     return ev
 
 
@@ -119,6 +120,7 @@ def replay_item(item: dict, rule_set) -> dict:
         return dict(result, reproduced=False, status="error", differences=[],
                     why=[f"replay failed: {type(exc).__name__}: {exc}"])
     diffs = compare_evaluations(stored, now)
+    arrays = _arrays_check(stored_event, now)
     eng = {"stored": stored.get("engine_version"), "now": now.get("engine_version")}
     rules_sha = {"stored": (stored.get("guidance") or {}).get("rule_set_sha256"),
                  "now": (now.get("guidance") or {}).get("rule_set_sha256")}
@@ -132,9 +134,22 @@ def replay_item(item: dict, rule_set) -> dict:
                    "reproducible here (numerical library versions or platform)")
     if not diffs and why:
         why.append("results reproduced within tolerance despite the change")
+    if arrays["status"] in ("within-tolerance", "differs"):
+        why.append(f"cold-spot arrays: {arrays['detail']}")
     return dict(result, reproduced=not diffs, status="reproduced" if not diffs else "changed",
                 differences=diffs, engine_version=eng, rule_set_sha256=rules_sha,
-                stale=sseq != max(snapshots), snapshot_seq=sseq, why=why)
+                stale=sseq != max(snapshots), snapshot_seq=sseq, arrays=arrays["status"], why=why)
+
+
+def _arrays_check(stored_event: dict, now: dict) -> dict:
+    """The recomputed arrays against the stored digest (compact events), or ``stored`` for an
+    evaluation kept whole."""
+    from deviation.records.arrays import check_arrays, split_arrays
+
+    digest = stored_event.get("arrays")
+    if not digest:
+        return {"status": "stored", "detail": "the arrays are stored with the evaluation"}
+    return check_arrays(digest, split_arrays(now)[1])
 
 
 _WORKER: dict[str, Any] = {}

@@ -79,10 +79,52 @@ def _define_v3(events: sa.Table) -> None:
     sa.Index("uq_events_event_id", events.c.event_id, unique=True)
 
 
+def _define_v4(md: sa.MetaData) -> dict[str, sa.Table]:
+    """Version 4: the store's key (its id and where keyed hashing starts, sealed under the key)
+    and the derived record summaries."""
+    store_keys = sa.Table(
+        "store_keys", md,
+        sa.Column("key_id", sa.String(64), primary_key=True),
+        sa.Column("from_global_seq", sa.Integer, nullable=False),  # first event hashed with the key
+        sa.Column("legacy_head", sa.String(64), nullable=False),  # global_hash before it (sealed)
+        sa.Column("created_utc", sa.String(32), nullable=False),
+        sa.Column("mac", sa.String(64), nullable=False),  # HMAC of the row under the key
+    )
+    summaries = sa.Table(
+        "record_summaries", md,
+        sa.Column("id", sa.String(64), primary_key=True),
+        sa.Column("lot", sa.String(200), nullable=False),
+        sa.Column("retort_id", sa.String(200), nullable=False),
+        sa.Column("process_id", sa.String(200), nullable=False),
+        sa.Column("process_version", sa.String(200), nullable=True),
+        sa.Column("created_utc", sa.String(32), nullable=False),
+        sa.Column("plant", sa.Text, nullable=True),
+        sa.Column("state", sa.String(32), nullable=False),
+        sa.Column("events", sa.Integer, nullable=False),
+        sa.Column("last_utc", sa.String(32), nullable=False),
+        sa.Column("last_global_seq", sa.Integer, nullable=False),
+        sa.Column("guidance", sa.String(64), nullable=True),
+        sa.Column("delivered_F_min", sa.Float, nullable=True),
+        sa.Column("target_F_min", sa.Float, nullable=True),
+        sa.Column("held", sa.Boolean, nullable=False),
+        sa.Column("decision", sa.Text, nullable=True),
+        sa.Column("decision_words", sa.Text, nullable=True),
+        sa.Column("decided_by", sa.String(200), nullable=True),
+        sa.Column("decided_utc", sa.String(32), nullable=True),
+        sa.Column("superseded", sa.Integer, nullable=False),
+        sa.Column("imported", sa.Boolean, nullable=False),
+        sa.Column("format", sa.Integer, nullable=False),
+        sa.Column("detail", sa.Text, nullable=False),
+        sa.Index("ix_record_summaries_created", "created_utc"),
+        sa.Index("ix_record_summaries_state", "state"),
+    )
+    return {"store_keys": store_keys, "record_summaries": summaries}
+
+
 metadata = sa.MetaData()
 
 
-_T = {**_define_v1(metadata), **_define_v2(metadata)}
+_T = {**_define_v1(metadata), **_define_v2(metadata), **_define_v4(metadata)}
 
 
 _define_v3(_T["events"])
@@ -90,6 +132,11 @@ _define_v3(_T["events"])
 
 schema_version_t, store_info_t, records_t, events_t, drafts_t = (
     _T["schema_version"], _T["store_info"], _T["records"], _T["events"], _T["drafts"])
+store_keys_t, summaries_t = _T["store_keys"], _T["record_summaries"]
+
+#: The pseudo-record whose events chain the process library (filings and retirements).
+LIBRARY_ID = "LIBRARY"
+LIBRARY_KINDS = ("process-filed", "process-retired")
 
 
 def _migrate_1(conn: sa.Connection) -> None:
@@ -117,8 +164,13 @@ def _migrate_3(conn: sa.Connection) -> None:
     conn.exec_driver_sql("CREATE UNIQUE INDEX uq_events_event_id ON events (event_id)")
 
 
+def create_v4_tables(conn: sa.Connection) -> None:
+    """The tables of version 4 (the rest of that migration is in :mod:`.migrate`)."""
+    md = sa.MetaData()
+    tables = _define_v4(md)
+    md.create_all(conn, tables=list(tables.values()))
+
+
 # Applied in order, each in its own transaction; index + 1 is the schema version it makes.
-MIGRATIONS: list[Callable[[sa.Connection], None]] = [_migrate_1, _migrate_2, _migrate_3]
-
-
-SCHEMA_VERSION = len(MIGRATIONS)
+# Version 4 (keys, summaries, the library in the chain) is in :mod:`deviation.records.migrate`.
+MIGRATIONS_1_TO_3: list[Callable[[sa.Connection], None]] = [_migrate_1, _migrate_2, _migrate_3]

@@ -6,25 +6,31 @@ own schema (table ``schema_version``; an older store is upgraded in place, never
 
 Integrity
 ---------
-Every event carries the SHA-256 of a canonical JSON form (keys sorted, separators ``,`` and
-``:``, UTF-8 as is, no NaN) of ``{record_id, seq, kind, utc, actor, role, payload, prev_hash}``
-where ``prev_hash`` is the hash of the record's previous event (64 zeros for the first): a chain
-per record. A second chain runs over the whole store in ``global_seq`` order, over
-``{global_seq, record_id, seq, hash, origin, global_prev_hash}``. :meth:`Store.verify` recomputes
-both and names the first event that does not hold. A chain proves that nothing was changed after
-the fact *relative to its head*; dropping the newest events of the whole store leaves a shorter
-valid chain, so an auditor notes the head (``verify`` reports it) and compares it later.
+Every event carries a hash of a canonical JSON form (keys sorted, separators ``,`` and ``:``,
+UTF-8 as is, no NaN) of ``{record_id, seq, kind, utc, actor, role, payload, prev_hash}`` where
+``prev_hash`` is the hash of the record's previous event (64 zeros for the first): a chain per
+record. A second chain runs over the whole store in ``global_seq`` order, over
+``{global_seq, record_id, seq, hash, origin, global_prev_hash}``. Both are HMAC-SHA-256 under the
+store's secret key (kept outside the database, :mod:`deviation.records.keys`), so a chain
+recomputed without the key does not verify; events written before the store had a key keep their
+SHA-256 and are sealed by the key's row. :meth:`Store.verify` recomputes both chains, checks the
+filed-process library and the summary table against them, and compares the store head with the
+anchors noted after each write (and ``expect_head``): events deleted from the end, or a chain
+rebuilt even with the key, no longer match an anchor kept out of reach.
 
 Nothing in the ``events`` or ``records`` tables is ever UPDATEd or DELETEd: an amendment is a new
 event (a test greps this file to keep it so). Drafts (the TUI's unsaved entry) live in their own
-mutable table and are not records.
+mutable table, and ``record_summaries`` is derived from the events (rebuilt by ``verify``).
+
+Evaluated events are compact: the figures, flags and guidance, and a digest of the arrays
+(:mod:`deviation.records.arrays`); the arrays are recomputed from the snapshot when asked for.
 
 Concurrency: on SQLite every write runs in ``BEGIN IMMEDIATE`` (writers queue on the file lock,
 with a busy timeout); on PostgreSQL (READ COMMITTED) a write first takes a transaction-scoped
 advisory lock, so the chain heads it reads afterwards are current and no two writers link to the
 same head (a lock rather than ``SELECT ... FOR UPDATE`` so a writer's database role needs no
-UPDATE privilege). A lock wait is bounded (``lock_timeout``); a unique-key, serialisation or
-deadlock conflict is retried with a bounded backoff.
+UPDATE privilege on the records). A lock wait is bounded (``lock_timeout``); a unique-key,
+serialisation or deadlock conflict is retried with a bounded backoff.
 
 Lost connections (PostgreSQL): a write whose connection fails before its COMMIT was sent is
 retried (nothing of it was stored) until the server answers again or the reconnect window
@@ -40,23 +46,17 @@ from __future__ import annotations
 
 import json
 import os
+import sys
 from datetime import date, datetime
-from typing import Iterator, Sequence
+from typing import Any, Callable, Iterator, Sequence
 
 import sqlalchemy as sa
 
 from deviation.errors import DeviationError, StoreError
-from deviation.records import bundles, roles
+from deviation.records import bundles, keys, ledger, roles, summaries
+from deviation.records.arrays import compact_evaluation
 from deviation.records.backends import Database, check_columns, created_bound, url_for
-from deviation.records.chains import (
-    GENESIS_HASH,
-    canonical_json,
-    event_hash,
-    global_hash,
-    header_mismatch,
-    new_record_id,
-    utc_now,
-)
+from deviation.records.chains import canonical_json, new_record_id, utc_now
 from deviation.records.events import (
     Event,
     ImportResult,
@@ -67,24 +67,15 @@ from deviation.records.events import (
     checked_event_id,
     event_from_row,
 )
-from deviation.records.schema import drafts_t, events_t, records_t
-
-# ---------------------------------------------------------------------------------------------
-# Canonical JSON and hashes
-
-
-# ---------------------------------------------------------------------------------------------
-# Schema. When a table changes, freeze its old definition inside the migration that made it
-# and add a migration; never edit a migration that has shipped.
-
-
-# ---------------------------------------------------------------------------------------------
-# Views
-
-
-# ---------------------------------------------------------------------------------------------
-# Payload rules per event kind
-
+from deviation.records.schema import (
+    LIBRARY_ID,
+    drafts_t,
+    events_t,
+    records_t,
+    store_info_t,
+    store_keys_t,
+    summaries_t,
+)
 
 # ---------------------------------------------------------------------------------------------
 # Opening
@@ -107,47 +98,82 @@ def open_store(url_or_path: str | os.PathLike | None = None, *,
 class Store(Database):
     """A deviation record store (see the module docstring)."""
 
+    signer: ledger.Signer
+
+    def _open(self) -> None:
+        super()._open()
+        self.signer = self._load_signer()
+        self.last_head: tuple[int, str] | None = None
+        self.anchor_problem: str | None = None
+
+    def _load_signer(self) -> ledger.Signer:
+        """The store's key row and the key itself (from outside the database)."""
+        with self._read() as conn:
+            store_id = conn.execute(sa.select(store_info_t.c.store_id)).scalar_one()
+            rows = conn.execute(sa.select(store_keys_t)).mappings().all()
+        self._store_id = store_id
+        if len(rows) != 1:
+            return ledger.Signer("", 1, "", None, f"the store has {len(rows)} key rows, expected one "
+                                                  "(changed behind the tool's back)")
+        r = rows[0]
+        src = keys.key_source(store_id)
+        key = keys.load_key(store_id)
+        if key is None:
+            problem = (f"this store's key (id {r['key_id']}) is not at {src.where}: copy the key file "
+                       f"from the machine that created the store, or give it with {keys.KEY_FILE_ENV} or "
+                       f"{keys.KEY_ENV}. Without it nothing can be signed and verify cannot check "
+                       "signatures")
+            return ledger.Signer(r["key_id"], r["from_global_seq"], r["legacy_head"], None, problem)
+        if keys.key_id(key) != r["key_id"]:
+            return ledger.Signer(r["key_id"], r["from_global_seq"], r["legacy_head"], None,
+                                 f"the key at {src.where} is not this store's key (its id is "
+                                 f"{keys.key_id(key)}, the store's is {r['key_id']})")
+        if ledger.seal(key, store_id, r["key_id"], r["from_global_seq"], r["legacy_head"],
+                       r["created_utc"]) != r["mac"]:
+            return ledger.Signer(r["key_id"], r["from_global_seq"], r["legacy_head"], None,
+                                 "the store's key row does not match its seal (changed behind the "
+                                 "tool's back): run deviation verify")
+        return ledger.Signer(r["key_id"], r["from_global_seq"], r["legacy_head"], key)
+
     # -- writing -----------------------------------------------------------------------------
-
-    @staticmethod
-    def _record_head(conn: sa.Connection, record_id: str) -> tuple[int, str]:
-        row = conn.execute(
-            sa.select(events_t.c.seq, events_t.c.hash).where(events_t.c.record_id == record_id)
-            .order_by(events_t.c.seq.desc()).limit(1)).first()
-        return (row.seq, row.hash) if row else (0, GENESIS_HASH)
-
-    @staticmethod
-    def _global_head(conn: sa.Connection) -> tuple[int, str]:
-        row = conn.execute(sa.select(events_t.c.global_seq, events_t.c.global_hash)
-                           .order_by(events_t.c.global_seq.desc()).limit(1)).first()
-        return (row.global_seq, row.global_hash) if row else (0, GENESIS_HASH)
 
     @staticmethod
     def _event_by_id(conn: sa.Connection, event_id: str):
         return conn.execute(sa.select(events_t).where(events_t.c.event_id == event_id)).mappings().first()
 
-    def _insert_event(self, conn: sa.Connection, *, record_id: str, kind: str, utc: str, actor: str,
-                      role: str, payload_json: str, origin: str | None = None,
-                      given: tuple[int, str, str] | None = None, event_id: str | None = None) -> dict:
-        """Insert one event at the heads of both chains (``given``: seq, prev_hash, hash of an
-        imported event, which keeps its own chain)."""
-        check_columns(events_t, {"actor": actor, "role": role, "kind": kind, "utc": utc},
-                       source=self.name)
-        if given is None:
-            last_seq, prev = self._record_head(conn, record_id)
-            seq = last_seq + 1
-            h = event_hash(record_id, seq, kind, utc, actor, role, payload_json, prev)
-        else:
-            seq, prev, h = given
-        gseq, gprev = self._global_head(conn)
-        gseq += 1
-        gh = global_hash(gseq, record_id, seq, h, origin, gprev)
-        row = dict(global_seq=gseq, record_id=record_id, seq=seq, kind=kind, utc=utc, actor=actor,
-                   role=role, payload=payload_json, prev_hash=prev, hash=h, origin=origin,
-                   global_prev_hash=gprev, global_hash=gh, event_id=event_id)
-        # Append-only: events are INSERTed, never changed or removed.
-        conn.execute(events_t.insert().values(**row))
-        return row
+    def _insert_event(self, conn: sa.Connection, **kw) -> dict:
+        """Insert one event at the heads of both chains (see :func:`ledger.insert_event`)."""
+        check_columns(events_t, {k: kw[k] for k in ("actor", "role", "kind", "utc")}, source=self.name)
+        return ledger.insert_event(conn, self.signer, source=self.name, **kw)
+
+    def write_anchored(self, fn: Callable[[sa.Connection, list], Any], *, idempotent: bool = True) -> Any:
+        """Run a write transaction ``fn(conn, rows)`` (``rows``: the event rows it inserted) and
+        note the new store head in the anchor file once it has committed."""
+        rows: list[dict] = []
+
+        def run(conn: sa.Connection):
+            rows.clear()
+            return fn(conn, rows)
+
+        result = self._retrying(run, idempotent=idempotent)
+        if rows:
+            self._anchor(rows[-1])
+        return result
+
+    def _anchor(self, row: dict) -> None:
+        head = (row["global_seq"], row["global_hash"])
+        self.last_head = head
+        self.anchor_problem = keys.append_anchor(keys.anchor_path(self._store_id), self._store_id, *head,
+                                                 utc_now())
+        if keys.print_heads():
+            print(f"store head {head[0]} {head[1]}", file=sys.stderr)
+
+    def _write_event(self, **kw) -> Callable[[sa.Connection, list], dict]:
+        def write(conn: sa.Connection, rows: list) -> dict:
+            row = self._insert_event(conn, **kw)
+            rows.append(row)
+            return row
+        return write
 
     def create_record(self, snapshot: dict, *, actor: str, role: str, lot: str, retort_id: str,
                       process_id: str, process_version: str | None = None,
@@ -168,13 +194,14 @@ class Store(Database):
                                    "process_version": process_version}, source=self.name)
         check_first = event_id is not None
         eid = checked_event_id(event_id)
+        self.signer.require(self.name)
         # Made once, outside the transaction: a retry writes the same record, not a new one.
         created = {"id": new_record_id()}
         # The snapshot (log contents and all) is serialised before the transaction; the payload
         # text is exactly canonical_json({"record": header, "snapshot": snapshot}).
         snapshot_json = canonical_json(snapshot)
 
-        def write(conn: sa.Connection) -> str:
+        def write(conn: sa.Connection, rows: list) -> str:
             nonlocal check_first
             if check_first:
                 done = self._event_by_id(conn, eid)
@@ -192,11 +219,12 @@ class Store(Database):
                       "process_version": process_version, "created_utc": when}
             payload_json = '{"record":' + canonical_json(header) + ',"snapshot":' + snapshot_json + "}"
             conn.execute(records_t.insert().values(**header))
-            self._insert_event(conn, record_id=rid, kind="entered", utc=when, actor=actor,
-                               role=role, payload_json=payload_json, event_id=eid)
+            rows.append(self._insert_event(conn, record_id=rid, kind="entered", utc=when, actor=actor, role=role,
+                                           payload_json=payload_json, payload={"record": header, "snapshot": snapshot},
+                                           event_id=eid, header=header))
             return rid
 
-        return self._retrying(write, idempotent=True)
+        return self.write_anchored(write)
 
     def append_event(self, record_id: str, kind: str, payload: dict, *, actor: str, role: str,
                      event_id: str | None = None) -> Event:
@@ -204,22 +232,30 @@ class Store(Database):
 
         ``event_id``: the append's idempotency key (made here when not given). If an event with
         this key is already stored (a retry of an append that did commit), that event is
-        returned and nothing is written.
+        returned and nothing is written. An ``evaluated`` payload is stored compact (its arrays
+        as a digest); a ``hold-released`` one cites the disposition in force (``decision_seq``).
         """
         if kind == "entered":
             raise StoreError("an 'entered' event starts a record: use create_record")
+        if kind in ("process-filed", "process-retired"):
+            raise StoreError(f"a '{kind}' event is written by the process library (deviation process ...)")
         check_payload(kind, payload)
         action = roles.KIND_ACTION[kind]
         role = roles.check_role(actor, role, action)
         payload = dict(payload)
+        if kind == "evaluated" and "arrays" not in payload:
+            payload["evaluation"], digest = compact_evaluation(payload["evaluation"])
+            if digest is not None:
+                payload["arrays"] = digest
         check_first = event_id is not None
         eid = checked_event_id(event_id)
-        # Serialised before the transaction (a large evaluation takes a while), unless the
-        # snapshot it refers to is only known inside it.
-        ready_json = (canonical_json(payload) if kind != "evaluated" or payload.get("snapshot_seq") is not None
-                      else None)
+        self.signer.require(self.name)
+        # Serialised before the transaction, unless something in it is only known inside it.
+        ready_json = (canonical_json(payload)
+                      if not (kind == "evaluated" and payload.get("snapshot_seq") is None)
+                      and not (kind == "hold-released" and payload.get("decision_seq") is None) else None)
 
-        def write(conn: sa.Connection) -> Event:
+        def write(conn: sa.Connection, rows: list) -> Event:
             nonlocal check_first
             if check_first:
                 # Before the state rules: a committed "decide" must be recognised, not refused
@@ -231,30 +267,41 @@ class Store(Database):
                                          f"({done['kind']}) of record {done['record_id']}", source=self.name)
                     return event_from_row(done)
             check_first = True  # any retry looks first
-            rows = conn.execute(sa.select(events_t.c.seq, events_t.c.kind)
-                                .where(events_t.c.record_id == record_id)
-                                .order_by(events_t.c.seq)).all()
-            if not rows:
-                raise StoreError(f"no record {record_id}", source=self.name)
-            roles.check_transition(record_id, roles.state_of(r.kind for r in rows), action,
-                                   actor=actor, role=role)
+            st, head = self._state(conn, record_id)
+            p = dict(payload)
+            roles.check_transition(record_id, st, action, actor=actor, role=role, payload=p)
             if kind == "evaluated":
-                latest = max(r.seq for r in rows if r.kind in ("entered", "amended"))
-                asked = payload.get("snapshot_seq")
+                asked = p.get("snapshot_seq")
                 if asked is None:
-                    payload["snapshot_seq"] = latest
-                elif asked != latest:
+                    p["snapshot_seq"] = st.snapshot_seq
+                elif asked != st.snapshot_seq:
                     raise roles.TransitionRefused(
                         f"actor '{actor}' (role {role}) cannot evaluate record {record_id}: the "
                         f"evaluation is of snapshot event {asked} but the record was amended since "
-                        f"(current snapshot event {latest}); evaluate again")
-            row = self._insert_event(conn, record_id=record_id, kind=kind, utc=utc_now(),
-                                     actor=actor, role=role,
-                                     payload_json=ready_json if ready_json is not None else canonical_json(payload),
-                                     event_id=eid)
-            return event_from_row(row, payload)
+                        f"(current snapshot event {st.snapshot_seq}); evaluate again")
+            if kind == "hold-released" and p.get("decision_seq") is None:
+                p["decision_seq"] = st.decision_seq  # the supervisor cites the disposition in force
+            text = ready_json if ready_json is not None else canonical_json(p)
+            row = self._insert_event(conn, record_id=record_id, kind=kind, utc=utc_now(), actor=actor,
+                                     role=role, payload_json=text, payload=p, event_id=eid, head=head)
+            rows.append(row)
+            return event_from_row(row, p)
 
-        return self._retrying(write, idempotent=True)
+        return self.write_anchored(write)
+
+    def _state(self, conn: sa.Connection, record_id: str) -> tuple[roles.RecordState, tuple[int, str]]:
+        """The record's state from its events (only dispositions' payloads are read, for their
+        decision) and its chain head (seq, hash), in one query."""
+        payload = sa.case((events_t.c.kind == "disposition", events_t.c.payload), else_=sa.null())
+        rows = conn.execute(sa.select(events_t.c.seq, events_t.c.kind, events_t.c.hash, payload.label("p"))
+                            .where(events_t.c.record_id == record_id)
+                            .order_by(events_t.c.seq)).all()
+        if not rows or record_id == LIBRARY_ID:
+            raise StoreError(f"no record {record_id}", source=self.name)
+        st = roles.START
+        for r in rows:
+            st = roles.advance(st, r.kind, json.loads(r.p) if r.p is not None else None, r.seq)
+        return st, (rows[-1].seq, rows[-1].hash)
 
     # Convenience writers (the CLI and TUI use these).
 
@@ -266,7 +313,8 @@ class Store(Database):
     def add_evaluation(self, record_id: str, evaluation: dict, *, actor: str, role: str,
                        snapshot_seq: int | None = None, options: dict | None = None,
                        event_id: str | None = None) -> Event:
-        """Append ``evaluated`` with the engine version and rule-set hash read from the evaluation."""
+        """Append ``evaluated`` with the engine version and rule-set hash read from the
+        evaluation; stored compact (figures, flags, guidance and a digest of the arrays)."""
         guidance = evaluation.get("guidance") or {}
         payload = {"engine_version": evaluation.get("engine_version"),
                    "rule_set_sha256": guidance.get("rule_set_sha256"),
@@ -282,17 +330,27 @@ class Store(Database):
                                  event_id=event_id)
 
     def release_hold(self, record_id: str, *, reason: str, actor: str, role: str,
-                     event_id: str | None = None) -> Event:
-        return self.append_event(record_id, "hold-released", {"reason": reason}, actor=actor, role=role,
+                     decision_seq: int | None = None, event_id: str | None = None) -> Event:
+        """Lift the hold citing the process authority's disposition (``decision_seq``; default:
+        the one in force). Refused while the record holds no disposition."""
+        payload: dict = {"reason": reason}
+        if decision_seq is not None:
+            payload["decision_seq"] = decision_seq
+        return self.append_event(record_id, "hold-released", payload, actor=actor, role=role,
                                  event_id=event_id)
 
     def decide(self, record_id: str, *, decision: str, reason: str, actor: str, role: str,
-               result: str | None = None, event_id: str | None = None) -> Event:
-        payload = {"decision": decision, "reason": reason}
-        if result:
-            payload["result"] = result
-        return self.append_event(record_id, "disposition", payload, actor=actor, role=role,
-                                 event_id=event_id)
+               result: str | None = None, decision_text: str | None = None, supersedes: int | None = None,
+               event_id: str | None = None) -> Event:
+        """Record the disposition: ``decision`` from :data:`roles.DECISIONS` (``release`` is read
+        as ``release-after-evaluation``; ``other`` needs ``decision_text``). A disposition in
+        force is corrected only by a superseding one (``supersedes``: its event number)."""
+        code = roles.decision_code(decision)
+        payload: dict = {"decision": code or decision, "reason": reason}
+        for k, v in (("decision_text", decision_text), ("result", result), ("supersedes", supersedes)):
+            if v:
+                payload[k] = v
+        return self.append_event(record_id, "disposition", payload, actor=actor, role=role, event_id=event_id)
 
     def note(self, record_id: str, text: str, *, actor: str, role: str,
              event_id: str | None = None) -> Event:
@@ -317,89 +375,99 @@ class Store(Database):
 
     def record_ids(self) -> list[str]:
         with self._read() as conn:
-            return list(conn.execute(sa.select(records_t.c.id).order_by(
+            return list(conn.execute(sa.select(records_t.c.id).where(records_t.c.id != LIBRARY_ID).order_by(
                 self._bytewise(records_t.c.created_utc), self._bytewise(records_t.c.id))).scalars())
+
+    def head(self) -> dict:
+        """The store head: ``{"global_seq", "global_hash"}`` of the newest event."""
+        with self._read() as conn:
+            seq, h = ledger.global_head(conn)
+        return {"global_seq": seq, "global_hash": h}
 
     def record(self, record_id: str) -> RecordView:
         """The record as it stands now (state, latest snapshot and evaluation, hold, disposition)."""
+        if record_id == LIBRARY_ID:
+            raise StoreError(f"no record {record_id} (the process library: deviation process list)",
+                             source=self.name)
         evs = self.events(record_id)
         with self._read() as conn:
             head = conn.execute(sa.select(records_t).where(records_t.c.id == record_id)).mappings().one()
-        st = roles.state_of(e.kind for e in evs)
+        s = None
+        snapshots: dict[int, dict] = {}
         snapshot, snapshot_seq = {}, 0
         evaluation = evaluation_event = None
         eval_snapshot_seq = None
-        hold = disposition = None
         notes = []
         for e in evs:
-            p = e.payload
+            p = e.payload if isinstance(e.payload, dict) else {}
+            s = summaries.fold(s, kind=e.kind, seq=e.seq, utc=e.utc, actor=e.actor, role=e.role, payload=p,
+                               origin=e.origin, global_seq=e.global_seq or 0, header=dict(head))
             if e.kind in ("entered", "amended"):
                 snapshot, snapshot_seq = p.get("snapshot", {}), e.seq
+                snapshots[e.seq] = snapshot
             elif e.kind == "evaluated":
                 evaluation = p.get("evaluation")
                 evaluation_event = {k: v for k, v in p.items() if k != "evaluation"}
                 evaluation_event.update(seq=e.seq, utc=e.utc, actor=e.actor, role=e.role)
                 eval_snapshot_seq = p.get("snapshot_seq")
-            elif e.kind == "hold-placed":
-                hold = {"held": True, "placed_by": e.actor, "placed_utc": e.utc, "reason": p.get("reason"),
-                        "seq": e.seq}
-            elif e.kind == "hold-released":
-                hold = dict(hold or {}, held=False, released_by=e.actor, released_utc=e.utc,
-                            release_reason=p.get("reason"), seq=e.seq)
-            elif e.kind == "disposition":
-                disposition = dict(p, by=e.actor, utc=e.utc, seq=e.seq)
             elif e.kind == "note":
                 notes.append({"text": p.get("text"), "by": e.actor, "role": e.role, "utc": e.utc, "seq": e.seq})
         return RecordView(
             id=record_id, lot=head["lot"], retort_id=head["retort_id"], process_id=head["process_id"],
-            process_version=head["process_version"], created_utc=head["created_utc"], state=st.state,
-            snapshot=snapshot, snapshot_seq=snapshot_seq, evaluation=evaluation,
+            process_version=head["process_version"], created_utc=head["created_utc"], state=s["state"],
+            snapshot=snapshot, snapshot_seq=snapshot_seq, stored_evaluation=evaluation,
             evaluation_event=evaluation_event,
             evaluation_current=evaluation is not None and eval_snapshot_seq == snapshot_seq,
-            hold=hold, disposition=disposition, notes=notes, events=evs)
+            hold=s["hold"], disposition=s["disposition"], notes=notes, events=evs,
+            superseded=s["superseded_dispositions"], origins=s["origins"],
+            evaluated_snapshot=snapshots.get(eval_snapshot_seq) if eval_snapshot_seq else None)
 
-    def list_records(self, state: str | None = None, lot: str | None = None, retort: str | None = None,
-                     since: str | date | datetime | None = None,
-                     until: str | date | datetime | None = None) -> list[RecordSummary]:
-        """Records (oldest first) filtered by state, lot, retort and creation time (UTC).
-
-        ``since``/``until`` take a date (``2024-05-01``, the whole day counts) or an ISO time.
-        """
+    def _summary_query(self, state: str | None = None, lot: str | None = None, retort: str | None = None,
+                       since: str | date | datetime | None = None, until: str | date | datetime | None = None,
+                       plant: str | None = None):
         if state is not None and state not in roles.STATES:
             raise DeviationError(f"unknown state '{state}' (states: {', '.join(roles.STATES)})",
                                  source="--state")
-        q = sa.select(records_t)
+        q = sa.select(summaries_t)
+        if state is not None:
+            q = q.where(summaries_t.c.state == state)
         if lot is not None:
-            q = q.where(records_t.c.lot == lot)
+            q = q.where(summaries_t.c.lot == lot)
         if retort is not None:
-            q = q.where(records_t.c.retort_id == retort)
+            q = q.where(summaries_t.c.retort_id == retort)
+        if plant is not None:
+            q = q.where(summaries_t.c.plant == plant)
         if since is not None:
-            q = q.where(self._bytewise(records_t.c.created_utc) >= created_bound(since, "since"))
+            q = q.where(self._bytewise(summaries_t.c.created_utc) >= created_bound(since, "since"))
         if until is not None:
-            q = q.where(self._bytewise(records_t.c.created_utc) < created_bound(until, "until"))
-        q = q.order_by(self._bytewise(records_t.c.created_utc), self._bytewise(records_t.c.id))
+            q = q.where(self._bytewise(summaries_t.c.created_utc) < created_bound(until, "until"))
+        return q.order_by(self._bytewise(summaries_t.c.created_utc), self._bytewise(summaries_t.c.id))
+
+    def summaries(self, **filters) -> list[dict]:
+        """Record summaries (oldest first), in one query of the derived table; filters as
+        :meth:`list_records` and ``plant``."""
         with self._read() as conn:
-            heads = conn.execute(q).mappings().all()
-            kinds: dict[str, list[str]] = {h["id"]: [] for h in heads}
-            last: dict[str, str] = {}
-            if heads:
-                ids = q.with_only_columns(records_t.c.id).order_by(None)
-                evq = (sa.select(events_t.c.record_id, events_t.c.kind, events_t.c.utc)
-                       .where(events_t.c.record_id.in_(ids))
-                       .order_by(events_t.c.record_id, events_t.c.seq))
-                for r in conn.execute(evq):
-                    kinds[r.record_id].append(r.kind)
-                    last[r.record_id] = r.utc
-        out = []
-        for h in heads:
-            st = roles.state_of(kinds[h["id"]])
-            if state is not None and st.state != state:
-                continue
-            out.append(RecordSummary(id=h["id"], lot=h["lot"], retort_id=h["retort_id"],
-                                     process_id=h["process_id"], process_version=h["process_version"],
-                                     created_utc=h["created_utc"], state=st.state, events=st.events,
-                                     last_utc=last.get(h["id"], h["created_utc"])))
-        return out
+            return [summaries.from_row(r) for r in conn.execute(self._summary_query(**filters)).mappings()]
+
+    def list_records(self, state: str | None = None, lot: str | None = None, retort: str | None = None,
+                     since: str | date | datetime | None = None,
+                     until: str | date | datetime | None = None, plant: str | None = None) -> list[RecordSummary]:
+        """Records (oldest first) filtered by state, lot, retort, plant and creation time (UTC).
+
+        ``since``/``until`` take a date (``2024-05-01``, the whole day counts) or an ISO time.
+        One query of the summary table.
+        """
+        q = self._summary_query(state=state, lot=lot, retort=retort, since=since, until=until, plant=plant)
+        q = q.with_only_columns(*(summaries_t.c[c] for c in summaries.LIST_COLUMNS))
+        with self._read() as conn:
+            return [RecordSummary(**r) for r in conn.execute(q).mappings()]
+
+    def deviation_log(self, *, since: str | date | datetime | None = None,
+                      until: str | date | datetime | None = None, plant: str | None = None) -> list[dict]:
+        """Every record entered in the period (the deviation log of 21 CFR 113.89), open items
+        first (no disposition yet), then by time entered; one query of the summary table."""
+        rows = self.summaries(since=since, until=until, plant=plant)
+        return sorted(rows, key=lambda s: (not summaries.is_open(s), s["created_utc"], s["id"]))
 
     def iter_replay_items(self, record_ids: Sequence[str] | None = None) -> Iterator[dict]:
         """For each record: its id, snapshot payload texts by seq and latest evaluated payload text.
@@ -430,74 +498,26 @@ class Store(Database):
 
     def count_records(self) -> int:
         with self._read() as conn:
-            return conn.execute(sa.select(sa.func.count()).select_from(records_t)).scalar_one()
+            return conn.execute(sa.select(sa.func.count()).select_from(records_t)
+                                .where(records_t.c.id != LIBRARY_ID)).scalar_one()
 
     def count_events(self) -> int:
+        """Events of deviation records (the library's chain events are not counted)."""
         with self._read() as conn:
-            return conn.execute(sa.select(sa.func.count()).select_from(events_t)).scalar_one()
+            return conn.execute(sa.select(sa.func.count()).select_from(events_t)
+                                .where(events_t.c.record_id != LIBRARY_ID)).scalar_one()
 
     # -- verify ------------------------------------------------------------------------------
 
-    def verify(self) -> VerifyResult:
-        """Recompute every hash of both chains; name the first event (store order) that breaks."""
-        first: dict | None = None
-        broken = 0
-        checked = 0
+    def verify(self, *, anchors: str | os.PathLike | None = None, expect_head: str | None = None,
+               rebuild_summaries: bool = True) -> VerifyResult:
+        """Check every event of both chains (keyed hashes under the store's key), the key's
+        seal, the process library, the summary table (rebuilt when it differs) and the store
+        head against the anchors (``anchors``: an anchor file; default the store's own, when it
+        exists) and ``expect_head`` (``HASH`` or ``SEQ:HASH``). See :mod:`.verify`."""
+        from deviation.records.verify import verify_store
 
-        def fail(row, reason: str) -> None:
-            nonlocal first, broken
-            broken += 1
-            if first is None:
-                first = {"record_id": row.record_id, "seq": row.seq, "kind": row.kind,
-                         "global_seq": row.global_seq, "reason": reason}
-
-        with self._guard(), self.engine.connect() as conn:
-            with conn.begin():
-                heads = {r["id"]: r for r in conn.execute(sa.select(records_t)).mappings()}
-                per: dict[str, tuple[int, str]] = {}
-                gseq, gprev = 0, GENESIS_HASH
-                q = sa.select(events_t).order_by(events_t.c.global_seq)
-                for row in conn.execution_options(yield_per=500).execute(q):
-                    checked += 1
-                    # Store-wide chain.
-                    if row.global_seq != gseq + 1:
-                        fail(row, f"store-wide sequence jumps from {gseq} to {row.global_seq}: "
-                                  "events are missing")
-                    if row.global_prev_hash != gprev:
-                        fail(row, "global_prev_hash does not match the previous event's global_hash")
-                    expect_g = global_hash(row.global_seq, row.record_id, row.seq, row.hash,
-                                           row.origin, row.global_prev_hash)
-                    if row.global_hash != expect_g:
-                        fail(row, "store-wide chain link does not match its hash (changed after writing)")
-                    gseq, gprev = row.global_seq, row.global_hash
-                    # Per-record chain.
-                    last_seq, last_hash = per.get(row.record_id, (0, GENESIS_HASH))
-                    if row.seq != last_seq + 1:
-                        fail(row, f"record sequence jumps from {last_seq} to {row.seq}: "
-                                  "events are missing or moved")
-                    if row.prev_hash != last_hash:
-                        fail(row, "prev_hash does not match the hash of the record's previous event")
-                    expect = event_hash(row.record_id, row.seq, row.kind, row.utc, row.actor, row.role,
-                                        row.payload, row.prev_hash)
-                    if row.hash != expect:
-                        fail(row, "event content does not match its hash (changed after writing)")
-                    if row.kind not in roles.EVENT_KINDS:
-                        fail(row, f"unknown event kind '{row.kind}'")
-                    if (row.seq == 1) != (row.kind == "entered"):
-                        fail(row, "a record starts with exactly one 'entered' event")
-                    if row.kind == "entered":
-                        why = header_mismatch(heads.get(row.record_id), row.payload)
-                        if why:
-                            fail(row, why)
-                    per[row.record_id] = (row.seq, row.hash)
-                for rid in heads:
-                    if rid not in per and first is None:
-                        broken += 1
-                        first = {"record_id": rid, "seq": None, "kind": None, "global_seq": None,
-                                 "reason": "record has no events (its entered event is missing)"}
-        return VerifyResult(ok=broken == 0, checked_events=checked, records=len(heads),
-                            first_broken=first, broken_count=broken,
-                            head={"global_seq": gseq, "global_hash": gprev})
+        return verify_store(self, anchors=anchors, expect_head=expect_head, rebuild_summaries=rebuild_summaries)
 
     # -- export / import ---------------------------------------------------------------------
 
@@ -505,9 +525,10 @@ class Store(Database):
         """A JSON-able bundle of records with their events (see :func:`bundles.export_bundle`)."""
         return bundles.export_bundle(self, record_ids)
 
-    def import_bundle(self, bundle: dict, *, actor: str | None = None, role: str = "auditor") -> ImportResult:
+    def import_bundle(self, bundle: dict, *, actor: str | None = None, role: str = "auditor",
+                      source_key: bytes | None = None) -> ImportResult:
         """Import a bundle (see :func:`bundles.import_bundle`)."""
-        return bundles.import_bundle(self, bundle, actor=actor, role=role)
+        return bundles.import_bundle(self, bundle, actor=actor, role=role, source_key=source_key)
 
     # -- drafts (mutable, not records) ------------------------------------------------------
 
@@ -533,17 +554,13 @@ class Store(Database):
         with self._read() as conn:
             return list(conn.execute(sa.select(drafts_t.c.key).order_by(self._bytewise(drafts_t.c.key))).scalars())
 
-    # -- process library (not in this schema yet) -------------------------------------------
+    # -- process library ---------------------------------------------------------------------
 
     def resolve_process_ref(self, ref: str) -> dict:
         """Resolve ``deviation.process_ref`` from the process library on this store."""
         from deviation.records import processes as library
 
         return library.resolve(self, ref)
-
-
-# ---------------------------------------------------------------------------------------------
-# Helpers
 
 
 __all__ = ["open_store", "Store"]

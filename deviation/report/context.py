@@ -80,7 +80,30 @@ FLAG_TITLES = {
     "scheduled-F-below-target": "Model does not reproduce the filed F0",
     "implausible-input": "Implausible input",
     "alternate-process-met": "Filed alternate process met (information)",
+    "recorder-above-indicating": "Recording device read above the indicating device",
+    "model-vs-filed": "Model does not reproduce the filed process (information)",
+    "ball-formula-differs": "Ball's formula differs from the General Method (information)",
+    "jh-differs-from-theory": "Heating lag factor jh differs from theory (information)",
+    "parameter-not-used": "A given parameter is not used by the model (information)",
+    "surface-heat-transfer-assumed": "Surface heat transfer assumed (information)",
+    "vent-schedule-not-met": "Venting schedule not met",
+    "water-level-low": "Water level below its filed minimum",
+    "water-level-below-top-layer": "Water below the top layer of containers",
+    "circulation-loss": "Water circulation lost",
+    "rotation-out": "Rotation speed outside its filed limit",
+    "rotation-stopped": "Rotation stopped",
+    "reel-stop": "Reel stopped (continuous retort)",
+    "reel-speed-low": "Reel speed below its filed minimum",
+    "botulinum-not-shown": "Botulinum safety not shown",
 }
+
+
+def _information_only() -> frozenset:
+    """Flags about the filed process and its model, not about this cycle (the vocabulary's list)."""
+    from deviation.guidance import vocabulary
+
+    return frozenset(getattr(vocabulary, "INFORMATION_FLAG_CODES", {"alternate-process-met"}))
+
 
 _HASH_PREFIX = 12
 # The timeline table shows every 10 min of the cold-spot history (and the last point).
@@ -156,6 +179,7 @@ def _deviations(ev) -> list[dict[str, str]]:
     """One row per flag: what, when, how far, how long (figures from the flag and low interval)."""
     pt = ev.facts.get("process_temperature_C")
     lows = list(ev.cycle.low_intervals)
+    info_only = _information_only()
     rows = []
     for f in ev.flags:
         when = how_far = how_long = "-"
@@ -188,14 +212,23 @@ def _deviations(ev) -> list[dict[str, str]]:
             how_far = _g(v)
         rows.append({
             "code": code,
-            "title": FLAG_TITLES.get(code, code),
+            "title": FLAG_TITLES.get(code) or code.replace("-", " ").capitalize(),
             "when": when,
             "how_far": how_far,
             "how_long": how_long,
             "message": f.message,
-            "information_only": code == "alternate-process-met",
+            "information_only": code in info_only,
         })
     return rows
+
+
+def _htc(hp) -> float | None:
+    """The surface heat transfer coefficient of the heat-penetration table (either name)."""
+    for name in ("surface_heat_transfer_W_m2K", "surface_htc_W_m2K"):
+        value = getattr(hp, name, None)
+        if value is not None:
+            return value
+    return None
 
 
 def _row(name: str, value: str, note: str = "") -> dict[str, str]:
@@ -234,7 +267,7 @@ def _inputs(loaded, ev) -> dict[str, Any]:
     heat = [_row("Model", hp.model)]
     for name, value, unit in (("fh", hp.fh_min, "min"), ("jh", hp.jh, ""), ("fc", hp.fc_min, "min"),
                               ("jc", hp.jc, ""), ("Thermal diffusivity", hp.thermal_diffusivity_m2_s, "m²/s"),
-                              ("Surface heat transfer coefficient", getattr(hp, "surface_htc_W_m2K", None),
+                              ("Surface heat transfer coefficient", _htc(hp),
                                "W/(m²·K)"),
                               ("Thermal conductivity", getattr(hp, "thermal_conductivity_W_mK", None), "W/(m·K)")):
         if value is not None:
@@ -308,7 +341,7 @@ def _method(loaded, ev) -> dict[str, Any]:
         model = ("Measured cold-spot temperatures (thermocouple in a container of the lot) integrated "
                  "directly; the retort record is shown for comparison only. No heat-transfer model is used.")
     elif hp.model == "finite-difference":
-        biot = getattr(hp, "surface_htc_W_m2K", None)
+        biot = _htc(hp)
         model = ("Conduction heating of the container solved by finite differences on a grid of nodes "
                  "(Teixeira et al. 1969), "
                  + ("with a finite surface heat transfer coefficient (Biot boundary)"
@@ -538,11 +571,18 @@ def _event_summary(kind: str, payload: dict) -> str:
         disp = (e.get("guidance") or {}).get("disposition", "?")
         Ftxt = f"F0 {F:.2f} min" if isinstance(F, (int, float)) else "F0 ?"
         return f"evaluated: {Ftxt}, guidance {disp}"
-    if kind in ("hold-placed", "hold-released"):
-        return f"{kind.replace('-', ' ')}: {p.get('reason', '')}".rstrip(": ")
+    if kind == "hold-placed":
+        return f"hold placed: {p.get('reason', '')}".rstrip(": ")
+    if kind == "hold-released":
+        cites = f" (citing the disposition, event {p['decision_seq']})" if p.get("decision_seq") else \
+            " (no disposition cited: written before the rule)"
+        return f"hold released: {p.get('reason', '')}{cites}"
     if kind == "disposition":
+        from deviation.records.roles import decision_words
+
         res = f"; result: {p['result']}" if p.get("result") else ""
-        return f"decision {p.get('decision', '?')}: {p.get('reason', '')}{res}"
+        sup = f" (supersedes event {p['supersedes']})" if p.get("supersedes") else ""
+        return f"decision {decision_words(p)}: {p.get('reason', '')}{res}{sup}"
     if kind == "note":
         return str(p.get("text", ""))
     return ""
@@ -554,16 +594,23 @@ def _timeline(events, record_id, record_hash) -> dict[str, Any]:
                 "statement": "Not a stored record: this report was built from a case file, so there is no "
                              "event timeline and no sign-off on record.",
                 "events": [], "signoffs": []}
+    from deviation.records.events import origin_text
+
     rows = []
     for i, e in enumerate(events, 1):
         kind = str(e.get("kind", ""))
         rows.append({"n": str(e.get("seq", i)), "utc": str(e.get("utc", "")), "kind": kind,
                      "actor": str(e.get("actor", "")), "role": str(e.get("role", "")),
                      "summary": _event_summary(kind, e.get("payload") or {}),
+                     "origin": origin_text(e.get("origin")) or "written in this store",
+                     "imported": e.get("origin") is not None,
                      "hash": _short(str(e.get("hash", "")))})
     signoffs = [r for r in rows if r["kind"] in ("disposition", "hold-placed", "hold-released", "evaluated")]
-    return {"stored": True, "record_id": record_id, "record_hash": record_hash,
+    imported = sum(1 for r in rows if r["imported"])
+    return {"stored": True, "record_id": record_id, "record_hash": record_hash, "imported": imported,
             "statement": f"{len(rows)} event(s) on record; each hash covers the event and the one before it. "
+                         + (f"{imported} of them were imported from another store (their origin is shown). "
+                            if imported else "") +
                          "The figures in this report are the record's latest stored evaluation when it is "
                          "of the latest case snapshot (otherwise they were computed again from that "
                          "snapshot); the evaluated events show what was computed at each time.",

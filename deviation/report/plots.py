@@ -99,7 +99,8 @@ def plots_svg(evaluation, process) -> dict[str, str]:
                    label=f"process temperature {process.process_temperature_C:.1f} °C")
         ax.plot(t, TR, color="#1f4e79", linestyle="-", label="retort")
         ax.plot(t, TC, color="#c0504d", linestyle=(0, (5, 2)),
-                label="cold spot (measured)" if cs.source == "measured" else f"cold spot ({cs.source} model)")
+                label="cold spot (measured)" if cs.source == "measured" else
+                f"cold spot ({str(cs.source).replace('$', chr(92) + '$')} model)")
         ax.set_xlabel("time from steam on [min]")
         ax.set_ylabel("temperature [°C]")
         ax.set_xlim(t[0], t[-1])

@@ -27,7 +27,7 @@ sys.path.insert(0, str(REPO))
 
 def _load_module():
     spec = importlib.util.spec_from_file_location("deviation_load_test",
-                                                  REPO / "tests" / "store" / "test_postgres_load.py")
+                                                  REPO / "tests" / "records" / "test_postgres_load.py")
     mod = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(mod)
     return mod

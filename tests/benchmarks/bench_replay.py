@@ -2,7 +2,9 @@
 
 The store is filled quickly and honestly: each demo case is loaded and evaluated once, then N
 records cycling through those cases are written as a bundle (real hash chains: ``entered`` with
-the full snapshot, ``evaluated`` with the full evaluation JSON) and imported in one transaction.
+the full snapshot, ``evaluated`` as the store writes it: compact, the figures and a digest of the
+arrays, where the store has compact events) and imported in one transaction; the import checks
+every event against the rules of its kind and links it under the store's key.
 The timed part is the real command, ``python -m deviation.cli replay --all --json`` (a process
 pool over all cores), so the figure includes reading every snapshot back from SQLite.
 
@@ -52,7 +54,7 @@ def demo_evaluations() -> list[tuple[dict, dict]]:
     for path in sorted(DEMO.glob("*.toml")):
         try:
             loaded = load_case(path)
-            ev = evaluate_case(loaded, rule_set=rs)
+            ev = evaluate_case(loaded, conservative=False, rule_set=rs)
         except DeviationError:
             continue
         out.append((loaded.snapshot(), ev.model_dump(mode="json")))
@@ -66,18 +68,26 @@ def fill(db: Path, n: int) -> dict:
     t0 = time.perf_counter()
     cases = demo_evaluations()
     t_eval = time.perf_counter() - t0
+    try:
+        from deviation.records.arrays import compact_evaluation as compact
+    except ImportError:  # a store of the release before compact events
+        compact = None
     records = []
     for i in range(n):
         snapshot, evaluation = cases[i % len(cases)]
         rid, utc = new_record_id(), utc_now()
         header = {"id": rid, "lot": f"BENCH-{i:06d}", "retort_id": evaluation["retort_id"],
                   "process_id": evaluation["process_id"], "process_version": None, "created_utc": utc}
+        evaluated = {"engine_version": evaluation["engine_version"],
+                     "rule_set_sha256": evaluation["guidance"]["rule_set_sha256"],
+                     "options": {"conservative": False, "what_if": True}, "snapshot_seq": 1,
+                     "evaluation": evaluation}
+        if compact is not None:  # as the store writes it (compact evaluated events)
+            evaluated["evaluation"], digest = compact(evaluation)
+            if digest is not None:
+                evaluated["arrays"] = digest
         payloads = [("entered", "olga", "operator", {"record": header, "snapshot": snapshot}),
-                    ("evaluated", "olga", "operator",
-                     {"engine_version": evaluation["engine_version"],
-                      "rule_set_sha256": evaluation["guidance"]["rule_set_sha256"],
-                      "options": {"conservative": False, "what_if": True}, "snapshot_seq": 1,
-                      "evaluation": evaluation})]
+                    ("evaluated", "olga", "operator", evaluated)]
         prev, events = GENESIS_HASH, []
         for seq, (kind, actor, role, payload) in enumerate(payloads, start=1):
             h = event_hash(rid, seq, kind, utc, actor, role, canonical_json(payload), prev)

@@ -11,6 +11,7 @@ of its own in the test database (the URL sets ``search_path``), dropped after th
 
 from __future__ import annotations
 
+import atexit
 import os
 import shutil
 import socket
@@ -24,6 +25,12 @@ from pathlib import Path
 import pytest
 
 PG_URL_ENV = "DEVIATION_TEST_PG_URL"
+
+# Store keys and anchor files of the test stores go to a folder of this test session (set at
+# import, before any test module copies os.environ for its subprocesses), not the user's own.
+if "DEVIATION_KEY_DIR" not in os.environ:
+    os.environ["DEVIATION_KEY_DIR"] = _KEYS = tempfile.mkdtemp(prefix="deviation-test-keys.")
+    atexit.register(shutil.rmtree, _KEYS, ignore_errors=True)
 REPO = Path(__file__).resolve().parents[2]
 
 

@@ -57,7 +57,7 @@ def test_operator_supervisor_process_authority_auditor_flow(capsys, db, backend,
 
     code, doc, _ = run_json(capsys, "record", "decide", rid, "--decision", "reprocess", "--reason",
                             "F0 short of target", "--result", "reprocessed 2024-05-02", "--db", db,
-                            "--actor", "pat", "--role", "process-authority")
+                            "--actor", "pat", "--role", "process-authority", "--yes")
     assert code == 0 and doc["state"] == "decided"
     assert doc["event"]["payload"] == {"decision": "reprocess", "reason": "F0 short of target",
                                        "result": "reprocessed 2024-05-02"}

@@ -280,5 +280,13 @@ def test_import_of_a_tampered_bundle_is_refused_by_the_command(backend, tmp_path
     bundle.write_text(json.dumps(doc), encoding="utf-8")
     out = cli("import", str(bundle), "--db", str(dst), "--role", "auditor")
     assert out.returncode == 3 and "Traceback" not in out.stderr
-    assert f"import refused: record {ids[1]} event 2 (note): content does not match its hash" in out.stderr
+    assert "import refused: the bundle's sha256 does not match its contents" in out.stderr
+    # With the source store's key, the changed event itself is named.
+    from deviation.records import keys
+
+    key_file = keys.key_source(open_store(src).store_id()).path
+    out = cli("import", str(bundle), "--db", str(dst), "--role", "auditor", "--source-key", str(key_file))
+    assert out.returncode == 3 and "Traceback" not in out.stderr
+    assert (f"import refused: record {ids[1]} event 2 (note): content does not match its signature under "
+            "the source store's key") in out.stderr
     assert open_store(dst).count_records() == 0  # nothing of a refused bundle is written

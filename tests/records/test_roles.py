@@ -87,37 +87,71 @@ def test_allowed_actions_per_role_and_state():
     assert roles.allowed_actions("supervisor", k) == ["evaluate", "place-hold", "note"]
     assert roles.allowed_actions("process-authority", k) == ["evaluate", "note"]  # not held: no decision
     assert roles.allowed_actions("process-authority", k + ["hold-placed"]) == ["evaluate", "decide", "note"]
-    assert roles.allowed_actions("operator", k + ["hold-placed", "hold-released"]) == ["evaluate", "note"]
-    assert roles.allowed_actions("supervisor", k + ["hold-placed", "disposition"]) == ["note"]
+    # Held and undecided: the supervisor may not release it (no disposition to cite).
+    assert roles.allowed_actions("supervisor", k + ["hold-placed"]) == ["evaluate", "note"]
+    # A reprocess decision keeps the lot on hold; the supervisor releases it citing the decision.
+    reprocess = k + ["hold-placed", ("disposition", {"decision": "reprocess"})]
+    assert roles.allowed_actions("supervisor", reprocess) == ["release-hold", "note"]
+    assert roles.allowed_actions("process-authority", reprocess) == ["supersede", "note"]
+    # Release after evaluation lifts the hold itself: nothing left to release.
+    release = k + ["hold-placed", ("disposition", {"decision": "release-after-evaluation"})]
+    assert roles.allowed_actions("supervisor", release) == ["note"]
+    assert roles.allowed_actions("operator", k + ["hold-placed", ("disposition", {"decision": "destroy"})]) == ["note"]
     assert roles.allowed_actions("auditor", k) == []
 
 
-ACTIONS = ["amend", "evaluate", "place-hold", "release-hold", "decide", "note"]
+def test_a_record_released_before_the_rule_is_read_as_written():
+    legacy = ["entered", "evaluated", "hold-placed", "hold-released"]
+    assert state_of(legacy).state == "released" and not state_of(legacy).held
+    assert roles.allowed_actions("supervisor", legacy) == ["evaluate", "place-hold", "note"]
+
+
+@pytest.mark.parametrize("typed, code", [("release", "release-after-evaluation"),
+                                         ("Release after evaluation", "release-after-evaluation"),
+                                         ("REPROCESS", "reprocess"), ("destroy", "destroy"), ("other", "other"),
+                                         ("relase", None), ("release it", None), ("", None)])
+def test_decisions_are_a_fixed_list(typed, code):
+    assert roles.decision_code(typed) == code
+
+
+ACTIONS = ["amend", "evaluate", "place-hold", "release-hold", "decide", "supersede", "note"]
 KIND_OF = {v: k for k, v in roles.KIND_ACTION.items()}
 
 
-@settings(max_examples=300, deadline=None)
-@given(st.lists(st.sampled_from(ACTIONS), max_size=25))
+@settings(max_examples=400, deadline=None)
+@given(st.lists(st.tuples(st.sampled_from(ACTIONS), st.sampled_from(roles.DECISIONS)), max_size=25))
 def test_any_allowed_history_keeps_the_invariants(attempts):
     """Apply only the actions the rules allow; the history then always obeys the invariants."""
-    kinds = ["entered"]
-    for action in attempts:
+    events = [("entered", {})]
+    for action, decision in attempts:
+        st_ = state_of(events)
+        payload = {"decision": decision}
+        if action == "supersede":
+            action, payload = "decide", {"decision": decision, "supersedes": st_.decision_seq or 1}
         try:
-            roles.check_transition("DR-X", state_of(kinds), action, actor="a", role="r")
+            roles.check_transition("DR-X", st_, action, actor="a", role="r", payload=payload)
         except TransitionRefused:
             continue
-        kinds.append(KIND_OF[action])
+        events.append((KIND_OF[action], payload if action == "decide" else {}))
+    kinds = [k for k, _ in events]
     first_hold = next((i for i, k in enumerate(kinds) if k in ("hold-placed", "hold-released")), len(kinds))
     assert "amended" not in kinds[first_hold:]  # no amendment after a hold decision
     if "disposition" in kinds:
         d = kinds.index("disposition")
-        assert kinds.count("disposition") == 1
-        assert set(kinds[d + 1:]) <= {"note"}  # decided is final
+        assert set(kinds[d + 1:]) <= {"note", "hold-released", "disposition"}  # after the decision
+        for i in range(d + 1, len(kinds)):
+            if kinds[i] == "disposition":  # a later disposition supersedes the one in force
+                assert events[i][1]["supersedes"] == max(j + 1 for j in range(i) if kinds[j] == "disposition")
         before = kinds[:d]
         last_hold = max(i for i, k in enumerate(before) if k in ("hold-placed", "hold-released"))
         assert before[last_hold] == "hold-placed"  # decided while held
         last_snapshot = max(i for i, k in enumerate(before) if k in ("entered", "amended"))
         assert "evaluated" in before[last_snapshot:]  # on an evaluation of the current snapshot
+    # No lot is released without a disposition: every release follows one.
+    for i, k in enumerate(kinds):
+        if k == "hold-released":
+            assert "disposition" in kinds[:i]
+    assert kinds.count("hold-released") <= 1
     for a, b in zip(kinds, kinds[1:]):
         assert not (a == b == "hold-placed")
 
@@ -148,14 +182,23 @@ def test_store_refuses_writes_the_state_does_not_allow(store):
         store.amend(rid, SNAPSHOT, reason="x", actor="olga", role="operator")
     with pytest.raises(TransitionRefused, match="has not been evaluated"):
         store.decide(rid, decision="release", reason="x", actor="pat", role="process-authority")
+    with pytest.raises(TransitionRefused, match="the process authority has not decided on it"):
+        store.release_hold(rid, reason="need the cage space", actor="sam", role="supervisor")
     store.add_evaluation(rid, EVALUATION, actor="sam", role="supervisor")
-    store.decide(rid, decision="reprocess", reason="F short", actor="pat", role="process-authority")
+    d = store.decide(rid, decision="reprocess", reason="F short", actor="pat", role="process-authority")
     with pytest.raises(TransitionRefused, match="it is decided"):
         store.add_evaluation(rid, EVALUATION, actor="pat", role="process-authority")
-    with pytest.raises(TransitionRefused, match="it is decided"):
-        store.release_hold(rid, reason="x", actor="sam", role="supervisor")
+    with pytest.raises(TransitionRefused, match="a superseding one"):
+        store.decide(rid, decision="destroy", reason="x", actor="pat", role="process-authority")
+    with pytest.raises(TransitionRefused, match="cites event 2, but the disposition in force is event"):
+        store.release_hold(rid, reason="reprocessed", decision_seq=2, actor="sam", role="supervisor")
     store.note(rid, "reprocessed 2024-05-02", actor="olga", role="operator")
-    assert store.record(rid).state == "decided"
+    rel = store.release_hold(rid, reason="reprocessed as filed", actor="sam", role="supervisor")
+    assert rel.payload["decision_seq"] == d.seq  # the release cites the disposition
+    with pytest.raises(TransitionRefused, match="it is not held"):
+        store.release_hold(rid, reason="again", actor="sam", role="supervisor")
+    v = store.record(rid)
+    assert v.state == "decided" and not v.hold["held"] and v.hold["release_cites"] == d.seq
     assert store.verify().ok
 
 

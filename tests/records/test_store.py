@@ -16,7 +16,7 @@ from pathlib import Path
 import pytest
 
 from deviation.records import bundles as B
-from deviation.records import schema as SC
+from deviation.records import migrate as SC
 from deviation.records import backends as BK
 from deviation.records import store as S
 from deviation.errors import StoreError
@@ -76,9 +76,12 @@ def test_chain_links_each_event_to_the_previous_and_starts_at_zeros(store):
     for a, b in zip(evs, evs[1:]):
         assert b.prev_hash == a.hash
         assert b.global_prev_hash == a.global_hash
+    key = store.signer.key  # HMAC-SHA-256 under the store's key
     for e in evs:  # recompute from the parsed payload, not the stored text
         assert e.hash == event_hash(e.record_id, e.seq, e.kind, e.utc, e.actor, e.role,
-                                    canonical_json(e.payload), e.prev_hash)
+                                    canonical_json(e.payload), e.prev_hash, key)
+        assert e.hash != event_hash(e.record_id, e.seq, e.kind, e.utc, e.actor, e.role,
+                                    canonical_json(e.payload), e.prev_hash)  # not the unkeyed SHA-256
         assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{6}Z", e.utc)
     assert [e.global_seq for e in evs] == [1, 2, 3]
 
@@ -226,25 +229,32 @@ def test_fresh_sqlite_store_has_the_current_schema_and_wal(tmp_path):
     assert versions == list(range(1, SC.SCHEMA_VERSION + 1))
 
 
-# Undo migrations 3 and 2 (the same SQL on both backends): what a version-1 store holds.
+# A store written by the release before keys (schema 3), committed as a fixture: see
+# tests/records/data/make_legacy_store.py. Undoing its migrations 3 and 2 gives a version-1 store.
+LEGACY = Path(__file__).parent / "data" / "legacy_store_v3.db"
 TO_VERSION_1 = ("DROP INDEX uq_events_event_id", "ALTER TABLE events DROP COLUMN event_id",
                 "DROP TABLE drafts", "DELETE FROM schema_version WHERE version > 1")
 
 
-def test_an_older_store_is_upgraded_with_its_records_kept(backend):
-    s = backend.open("old")
-    rid = new(s)
-    s.note(rid, "kept", **OP)
-    hashes = [e.hash for e in s.events(rid)]
-    s.close()
+def test_a_version_1_store_is_upgraded_with_its_records_kept(tmp_path, monkeypatch):
+    import shutil
+
+    monkeypatch.setenv("DEVIATION_ANCHOR_FILE", str(tmp_path / "anchors"))  # copies share a store id
+    db = tmp_path / "old.db"
+    shutil.copy(LEGACY, db)
+    con = sqlite3.connect(db)
+    before = con.execute("SELECT global_seq, hash, global_hash, payload FROM events ORDER BY global_seq").fetchall()
     for statement in TO_VERSION_1:
-        backend.sql(backend.target("old"), statement)
-    assert backend.query(backend.target("old"), "SELECT max(version) FROM schema_version") == [(1,)]
-    s = open_store(backend.target("old"))
-    assert s.schema_version() == SC.SCHEMA_VERSION == 3
-    evs = s.events(rid)
-    assert [e.payload.get("text") for e in evs] == [None, "kept"]
-    assert [e.hash for e in evs] == hashes and [e.event_id for e in evs] == [None, None]
+        con.execute(statement)
+    con.commit()
+    con.close()
+    s = open_store(db)
+    assert s.schema_version() == SC.SCHEMA_VERSION == 4
+    con = sqlite3.connect(db)
+    after = con.execute("SELECT global_seq, hash, global_hash, payload FROM events ORDER BY global_seq").fetchall()
+    assert after[:len(before)] == before  # no event rewritten
+    rid = s.record_ids()[0]
+    assert [e.event_id for e in s.events(rid)] == [None] * len(s.events(rid))
     assert s.verify().ok
     s.save_draft("k", {"a": 1})
     assert s.load_draft("k") == {"a": 1}
@@ -408,6 +418,7 @@ def _tamper(bundle, how):
     elif how == "rehash-one":  # the forger recomputes this event's hash, not the chain after it
         e = evs[1]
         e["payload"]["evaluation"]["delivered_F_min"] = 99.0
+        e["alg"] = "sha256"
         e["hash"] = event_hash(b["records"][0]["record"]["id"], e["seq"], e["kind"], e["utc"], e["actor"],
                                e["role"], canonical_json(e["payload"]), e["prev_hash"])
     return b
@@ -425,7 +436,12 @@ def test_import_refuses_a_tampered_bundle(store, backend, how, message):
     a, _ = _filled(store)
     bundle = _tamper(store.export_bundle([a]), how)
     target = backend.open("t")
-    with pytest.raises(StoreError, match=f"import refused: record {a}.*" + message):
+    # With the source store's key every event's signature is checked and the event is named.
+    with pytest.raises(StoreError, match=f"import refused: record {a}.*" + message.replace(
+            "content does not match its hash", "content does not match its (hash|signature)")):
+        target.import_bundle(bundle, source_key=store.signer.key)
+    # Without it, the bundle's own checksum (or the chain) still refuses it.
+    with pytest.raises(StoreError, match="import refused"):
         target.import_bundle(bundle)
     assert target.count_records() == 0 and target.count_events() == 0
 
@@ -487,7 +503,7 @@ def test_a_record_hashes_the_same_on_sqlite_and_postgresql(tmp_path, pg_backend)
     # Written on PostgreSQL, the hash is recomputed here from the stored fields alone.
     e = pg.note(a, "written on the server", **OP)
     assert e.hash == event_hash(e.record_id, e.seq, e.kind, e.utc, e.actor, e.role,
-                                canonical_json(e.payload), e.prev_hash)
+                                canonical_json(e.payload), e.prev_hash, pg.signer.key)
     assert open_store(tmp_path / "back.db").import_bundle(pg.export_bundle([a])).events_added == 1
 
 

@@ -124,4 +124,4 @@ async def test_changed_result_is_marked_and_an_edited_row_breaks_the_chain(db):
         await pilot.pause()
         line = text_of(app.screen.query_one("#verify-line"))
         assert line.startswith(f"✗ BROKEN: record {rid} event 2 (evaluated")
-        assert "event content does not match its hash (changed after writing)" in line
+        assert "event content does not match its hash (changed after writing" in line

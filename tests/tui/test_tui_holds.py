@@ -1,9 +1,14 @@
 """Holds board and record screen driven with Pilot: find a saved entry, hold it as supervisor,
-see the timeline, decide it as process authority; refusals read as in the CLI."""
+see the timeline, decide it as process authority (from the fixed list, after a confirmation);
+the board shows the decision; refusals read as in the CLI; text with markup is shown as typed.
+
+The store is seeded here with the demo plant's records in the regulation's workflow (a lot is
+released only by the process authority's disposition)."""
 
 import asyncio
 import functools
 from datetime import datetime
+from pathlib import Path
 
 import pytest
 from textual.widgets import DataTable, Input, Select
@@ -59,7 +64,39 @@ def text_of(widget) -> str:
 
 def board_lots(screen) -> list[str]:
     t = screen.query_one("#board", DataTable)
-    return [str(t.get_row_at(i)[2]) for i in range(t.row_count)]
+    return [str(t.get_row_at(i)[3]) for i in range(t.row_count)]
+
+
+DEMO = Path(__file__).resolve().parents[2] / "demo_cases"
+# (case, what becomes of it): the demo plant's records, each in its state.
+SEEDS = (("chili_temperature_drop.toml", "held"), ("peas_short_hold.toml", "evaluated"),
+         ("tray_steam_failure.toml", "reprocess"), ("chili_no_deviation.toml", "evaluated"),
+         ("peas_steam_loss.toml", "release-after-evaluation"))
+
+
+def seed(db) -> None:
+    """The demo library and records, written through the store as the roles would."""
+    from deviation.evaluate import evaluate_case
+    from deviation.inputs.case import load_case
+    from deviation.records import processes as library
+
+    store = open_store(db)
+    for path in sorted((DEMO / "processes").glob("*.toml")):
+        library.add_process(store, path, actor="pat", role="process-authority", reason="demo library")
+    for name, fate in SEEDS:
+        loaded = load_case(DEMO / name)
+        dev = loaded.case.deviation
+        rid = store.create_record(loaded.snapshot(), actor="olga", role="operator", lot=dev.lot,
+                                  retort_id=dev.retort_id, process_id=loaded.case.process.id)
+        store.add_evaluation(rid, evaluate_case(loaded, conservative=False).model_dump(mode="json"), actor="olga",
+                             role="operator", snapshot_seq=1, options={"conservative": False, "what_if": True})
+        if fate != "evaluated":
+            store.place_hold(rid, reason="deviation found at the retort; set aside for evaluation", actor="sam",
+                             role="supervisor")
+        if fate not in ("evaluated", "held"):
+            store.decide(rid, decision=fate, reason="process authority's evaluation", actor="pat",
+                         role="process-authority")
+    store.close()
 
 
 def notes(app) -> list[str]:
@@ -70,12 +107,15 @@ def notes(app) -> list[str]:
 def db(tmp_path, monkeypatch):
     monkeypatch.delenv("DEVIATION_DB", raising=False)
     monkeypatch.delenv("DEVIATION_ROLE", raising=False)
-    return tmp_path / "holds.db"
+    monkeypatch.setenv("DEVIATION_KEY_DIR", str(tmp_path / "keys"))
+    path = tmp_path / "holds.db"
+    seed(path)
+    return path
 
 
 @sync
 async def test_saved_entry_is_held_by_a_supervisor(db):
-    app = build_app(db=db, demo=True, actor="olga", role="operator", clock=clock)
+    app = build_app(db=db, actor="olga", role="operator", clock=clock)
     async with app.run_test(size=(100, 30)) as pilot:
         rid = await enter_drop(pilot, "CHL-HOLD-1")
         await pilot.press("f3")
@@ -113,7 +153,7 @@ async def test_saved_entry_is_held_by_a_supervisor(db):
 
 @sync
 async def test_record_timeline_and_disposition(db):
-    app = build_app(db=db, demo=True, actor="pat", role="process-authority", clock=clock)
+    app = build_app(db=db, actor="pat", role="process-authority", clock=clock)
     async with app.run_test(size=(100, 30)) as pilot:
         await pilot.press("f3")
         await pilot.pause()
@@ -130,24 +170,45 @@ async def test_record_timeline_and_disposition(db):
         await pilot.press("d")
         await pilot.pause()
         dialog = app.screen
-        dialog.query_one("#field-decision", Input).value = "release"
+        dialog.query_one("#field-decision", Select).value = "other"
         dialog.query_one("#field-reason", Input).value = "delivered F0 above the filed target"
+        await pilot.press("ctrl+s")  # "other" without its words: refused in place
+        await pilot.pause()
+        assert "needs the decision in words" in text_of(app.screen.query_one("#dialog-error"))
+        dialog.query_one("#field-decision", Select).value = "release-after-evaluation"
         dialog.query_one("#field-result", Input).value = "incubation 10 days, no swells"
         await pilot.press("ctrl+s")
         await pilot.pause()
+        summary = text_of(app.screen.query_one("#confirm-summary"))  # the summary before it is written
+        assert "decision:  release after evaluation" in summary and "the hold is lifted" in summary
+        await pilot.press("escape")  # back: nothing written
+        await pilot.pause()
+        assert rec.query_one(Timeline).row_count == len(events)
+        await pilot.press("d")
+        await pilot.pause()
+        app.screen.query_one("#field-decision", Select).value = "reprocess"
+        app.screen.query_one("#field-reason", Input).value = "delivered F0 short of the filed target"
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        await pilot.press("y")  # confirmed
+        await pilot.pause()
         assert rec.query_one(Timeline).row_count == len(events) + 1
-        assert "⚖ disposition by pat: release" in text_of(rec.query_one("#record-header"))
+        header = text_of(rec.query_one("#record-header"))
+        assert "⚖ disposition by pat: reprocess" in header and "may now: supersede, note" in header
         await pilot.press("escape")
         await pilot.pause()
         assert "CHL-261104-A" not in board_lots(board)  # decided: no longer open
         await pilot.press("a")  # all records
         await pilot.pause()
         assert "CHL-261104-A" in board_lots(board)
+        t = board.query_one("#board", DataTable)
+        row = next(t.get_row_at(i) for i in range(t.row_count) if str(t.get_row_at(i)[3]) == "CHL-261104-A")
+        assert "⚖ reprocess" in str(row[2]) and "⏸" in str(row[0])  # the decision shown; still on hold
 
 
 @sync
 async def test_board_sorts_and_counts(db):
-    app = build_app(db=db, demo=True, actor="sam", role="supervisor", clock=clock)
+    app = build_app(db=db, actor="sam", role="supervisor", clock=clock)
     async with app.run_test(size=(80, 24)) as pilot:
         await pilot.press("f3")
         await pilot.pause()
@@ -162,3 +223,30 @@ async def test_board_sorts_and_counts(db):
         assert lots == sorted(lots)
         summary = text_of(board.query_one("#board-summary"))
         assert summary.startswith(f"{len(lots)} of {len(lots)} open records · sorted by lot")
+
+
+@sync
+async def test_a_supervisor_cannot_release_an_undecided_lot_and_markup_is_shown_as_typed(db):
+    store = open_store(db)
+    rid = next(r.id for r in store.list_records() if r.lot == "CHL-261104-A")
+    store.note(rid, "see [/x] and [white on white]hidden[/]", actor="olga", role="operator")
+    store.close()
+    app = build_app(db=db, actor="sam", role="supervisor", clock=clock)
+    async with app.run_test(size=(120, 30)) as pilot:
+        await pilot.press("f3")
+        await pilot.pause()
+        await pilot.press("slash", *"CHL-261104-A", "enter")
+        await pilot.pause()
+        await pilot.press("r", *"need the cage space", "enter")
+        await pilot.pause()
+        assert "the process authority has not decided on it" in text_of(app.screen.query_one("#dialog-error"))
+        await pilot.press("escape")
+        await pilot.pause()
+        await pilot.press("enter")  # open the record: the note with markup is shown as typed
+        await pilot.pause()
+        rec = app.screen
+        assert isinstance(rec, RecordScreen)
+        t = rec.query_one(Timeline)
+        whats = [str(t.get_row_at(i)[4]) for i in range(t.row_count)]
+        assert "see [/x] and [white on white]hidden[/]" in whats
+    assert open_store(db).record(rid).state == "held"

@@ -17,6 +17,7 @@ from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Static
 
 from deviation.errors import DeviationError
+from deviation.records.text import one_line
 from deviation.tui.screens.dialogs import ExportReportDialog, FileChoice
 from deviation.tui.widgets.comparison import ComparisonTable
 from deviation.tui.widgets.status import StatusLine
@@ -42,7 +43,7 @@ def replay_record(store, record_id: str) -> dict:
     if items[0].get("evaluated") is None:
         return out
     stored_event = json.loads(items[0]["evaluated"])
-    stored = stored_event["evaluation"]
+    stored = stored_event["evaluation"]  # compact: the arrays are compared by their digest
     snapshots = {int(k): v for k, v in items[0]["snapshots"].items()}
     sseq = stored_event.get("snapshot_seq") or max(snapshots)
     snapshot = json.loads(snapshots[sseq])["snapshot"]
@@ -63,10 +64,11 @@ def verify_text(res) -> Text:
     """The CLI's verify sentence for a :class:`~deviation.records.store.VerifyResult`."""
     if res.ok:
         return Text(f"✓ every hash chain holds: {res.checked_events} events in {res.records} records; "
-                    f"store head {res.head['global_seq']} {res.head['global_hash'][:16]}…", style="green")
+                    f"store head {res.head['global_seq']} {res.head['global_hash']}", style="green")
     b = res.first_broken
-    return Text(f"✗ BROKEN: record {b['record_id']} event {b['seq']} ({b['kind']}, store position "
-                f"{b['global_seq']}): {b['reason']} ({res.broken_count} problem(s))", style="bold red")
+    where = (f"record {b['record_id']} event {b['seq']} ({b['kind']}, store position {b['global_seq']}): "
+             if b.get("seq") is not None else "")
+    return Text(f"✗ BROKEN: {where}{one_line(b['reason'])} ({res.broken_count} problem(s))", style="bold red")
 
 
 def report_available() -> bool:
@@ -123,10 +125,10 @@ class AuditScreen(Screen):
         try:
             rows = ctx.store.list_records()
         except DeviationError as exc:
-            self.notify(str(exc), severity="error")
+            self.notify(one_line(exc), severity="error", markup=False)
             return
         for r in reversed(rows):  # newest first
-            t.add_row(r.id, r.lot, r.state, key=r.id)
+            t.add_row(Text(r.id + (" ⇩" if r.imported else "")), Text(one_line(r.lot)), r.state, key=r.id)
         if self.record_id:
             self.select(self.record_id)
 
@@ -158,7 +160,7 @@ class AuditScreen(Screen):
             res = replay_record(store, record_id)
             events = store.events(record_id)
         except DeviationError as exc:
-            self.notify(str(exc), severity="error")
+            self.notify(one_line(exc), severity="error", markup=False)
             return
         self.result = res
         v = res["verdict"]
@@ -166,7 +168,7 @@ class AuditScreen(Screen):
                 "not-evaluated": ("· NOT EVALUATED", "dim"), "error": ("✗ ERROR", "bold red")}[v["status"]]
         why = "; ".join(v.get("why", [])) or "stored result reproduced within the replay tolerances"
         self.query_one("#replay-verdict", Static).update(
-            Text.assemble((f"{look[0]} ", look[1]), (f"{record_id}: ", "bold"), why))
+            Text.assemble((f"{look[0]} ", look[1]), (f"{record_id}: ", "bold"), one_line(why)))
         differing = {d["field"] for d in res.get("differences", v.get("differences", []))}
         self.query_one(ComparisonTable).show(res["stored"], res["now"], differing)
         self.query_one("#audit-timeline", Timeline).show(events)
@@ -175,18 +177,18 @@ class AuditScreen(Screen):
         try:
             res = self.app.ctx.store.verify()
         except DeviationError as exc:
-            self.query_one("#verify-line", Static).update(Text(f"✗ {exc}", style="bold red"))
+            self.query_one("#verify-line", Static).update(Text(f"✗ {one_line(exc)}", style="bold red"))
             return
         self.verify_result = res
         self.query_one("#verify-line", Static).update(verify_text(res))
 
     def action_export(self) -> None:
         if not report_available():
-            self.notify("the report layer (deviation.report) is not installed here", severity="warning")
+            self.notify("the report layer (deviation.report) is not installed here", severity="warning", markup=False)
             return
         if not self.result or self.result.get("evaluation") is None:
             self.notify("replay a record first (Enter): the report is of its recomputed evaluation",
-                        severity="warning")
+                        severity="warning", markup=False)
             return
         rid = self.record_id
         res = self.result
@@ -209,6 +211,6 @@ class AuditScreen(Screen):
 
         def done(choice: FileChoice | None) -> None:
             if choice is not None:
-                self.notify(f"report written to {choice.path}", title="Exported")
+                self.notify(f"report written to {one_line(choice.path)}", title="Exported", markup=False)
 
         self.app.push_screen(ExportReportDialog(apply=write, values={"path": f"report-{rid}.html"}), done)

@@ -1,7 +1,9 @@
-"""Holds board: the open records with their state and guidance, for the supervisor.
+"""Holds board: the open records with their state, guidance and the process authority's
+decision, for the supervisor.
 
-Keys: Enter opens a record, H places a hold, R releases it, D records a disposition, N adds a
-note, S changes the sort, A shows all records or only the open ones, / filters.
+Keys: Enter opens a record, H places a hold, R releases it (citing the disposition), D records a
+disposition, N adds a note, S changes the sort, A shows all records or only the open ones, /
+filters. The rows come from the store's summary table in one query; every text is shown as typed.
 """
 
 from __future__ import annotations
@@ -15,6 +17,7 @@ from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Input, Static
 
 from deviation.errors import DeviationError
+from deviation.records.text import one_line
 from deviation.tui.screens.actions import run_record_action
 from deviation.tui.widgets.results import disposition_look
 from deviation.tui.widgets.status import StatusLine
@@ -44,28 +47,24 @@ class BoardRow:
     delivered_F_min: float | None
     target_F_min: float | None
     created_utc: str
+    decision: str | None = None  # the process authority's decision in force, in words
+    held: bool = False
+    imported: bool = False
 
     def matches(self, text: str) -> bool:
         text = text.strip().lower()
         if not text:
             return True
         hay = " ".join(str(v) for v in (self.id, self.lot, self.retort_id, self.process_id, self.state,
-                                         self.disposition or "")).lower()
+                                         self.disposition or "", self.decision or "")).lower()
         return all(word in hay for word in text.split())
 
 
 def board_rows(store, *, open_only: bool) -> list[BoardRow]:
-    """The records of the store with their latest evaluation (open ones: not decided)."""
-    out = []
-    for s in store.list_records():
-        if open_only and s.state == "decided":
-            continue
-        view = store.record(s.id)
-        ev = view.evaluation or {}
-        out.append(BoardRow(s.id, s.lot, s.retort_id, s.process_id, s.state,
-                            (ev.get("guidance") or {}).get("disposition"), ev.get("delivered_F_min"),
-                            ev.get("target_F_min"), s.created_utc))
-    return out
+    """The records of the store (open ones: not decided), from the summary table in one query."""
+    return [BoardRow(s.id, s.lot, s.retort_id, s.process_id, s.state, s.guidance, s.delivered_F_min,
+                     s.target_F_min, s.created_utc, s.decision_words, s.held, s.imported)
+            for s in store.list_records() if not (open_only and s.state == "decided")]
 
 
 def sort_rows(rows: list[BoardRow], key: str) -> list[BoardRow]:
@@ -111,7 +110,8 @@ class HoldsScreen(Screen):
 
     def on_mount(self) -> None:
         t = self.query_one("#board", DataTable)
-        t.add_columns("state", "guidance", "lot", "retort", "process", "F0 / target", "entered (UTC)", "record")
+        t.add_columns("state", "guidance", "decision", "lot", "retort", "process", "F0 / target", "entered (UTC)",
+                      "record")
         self.reload()
         t.focus()
 
@@ -129,7 +129,7 @@ class HoldsScreen(Screen):
         try:
             self.rows = board_rows(self.app.ctx.store, open_only=self.open_only)
         except DeviationError as exc:
-            self.notify(str(exc), severity="error")
+            self.notify(one_line(exc), severity="error", markup=False)
             self.rows = []
         self.fill()
 
@@ -146,8 +146,12 @@ class HoldsScreen(Screen):
                      "no-deviation": "no deviation"}.get(r.disposition or "", r.disposition or "none")
             F = (f"{r.delivered_F_min:.2f} / {r.target_F_min:g}"
                  if r.delivered_F_min is not None and r.target_F_min is not None else "—")
-            t.add_row(Text(st, style=st_style), Text(f"{symbol} {short}", style=style), r.lot, r.retort_id,
-                      r.process_id, F, r.created_utc[:16].replace("T", " "), r.id, key=r.id)
+            if r.state == "decided" and r.held:
+                st = st + " ⏸"  # decided, the lot still on hold (e.g. until the reprocess is done)
+            decision = Text(f"⚖ {one_line(r.decision, 28)}", style="magenta") if r.decision else Text("—", style="dim")
+            t.add_row(Text(st, style=st_style), Text(f"{symbol} {one_line(short)}", style=style), decision,
+                      Text(one_line(r.lot)), Text(one_line(r.retort_id)), Text(one_line(r.process_id)), F,
+                      r.created_utc[:16].replace("T", " "), Text(r.id + (" ⇩" if r.imported else "")), key=r.id)
         if keep is not None:
             for i, r in enumerate(shown):
                 if r.id == keep:

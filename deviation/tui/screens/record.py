@@ -1,7 +1,9 @@
-"""One record: its state, hold and disposition, what the actor may do now, and its timeline.
+"""One record: its state, hold and disposition (and any it superseded), where imported events
+came from, what the actor may do now, and its timeline.
 
 E re-evaluates the record's latest snapshot with the current engine and rules, as
-``deviation record evaluate ID`` does (the same function writes the ``evaluated`` event).
+``deviation record evaluate ID`` does (the same function writes the ``evaluated`` event). Every
+text a person typed is shown as text, never as markup.
 """
 
 from __future__ import annotations
@@ -15,38 +17,50 @@ from textual.widgets import Footer, Static
 
 from deviation.errors import DeviationError
 from deviation.records import roles
+from deviation.records.events import origin_text
+from deviation.records.text import one_line
 from deviation.tui.screens.actions import run_record_action
 from deviation.tui.widgets.results import disposition_text
 from deviation.tui.widgets.status import StatusLine
 from deviation.tui.widgets.timeline import Timeline
 
 
+def _F(x) -> str:
+    return f"{x:.2f}" if isinstance(x, (int, float)) and not isinstance(x, bool) else "?"
+
+
 def record_header(view, actor: str, role: str) -> Group:
-    ev = view.evaluation or {}
+    ev = view.stored_evaluation or {}
     g = ev.get("guidance") or {}
     lines = [
         Text.assemble(("Record ", "bold"), (view.id, "bold"), f"  state {view.state}"),
-        Text(f"lot {view.lot} · retort {view.retort_id} · process {view.process_id}"
-             + (f" v{view.process_version}" if view.process_version else "")),
+        Text(f"lot {one_line(view.lot)} · retort {one_line(view.retort_id)} · process {one_line(view.process_id)}"
+             + (f" v{one_line(view.process_version)}" if view.process_version else "")),
     ]
     if ev:
         F = ev.get("delivered_F_min")
         lines.append(Text.assemble("guidance ", disposition_text(g.get("disposition")),
-                                   f" · F0 {F:.2f} of {ev.get('target_F_min'):g} min" if F is not None else ""))
+                                   f" · F0 {_F(F)} of {_F(ev.get('target_F_min'))} min" if F is not None else ""))
         if not view.evaluation_current:
             lines.append(Text("! the latest evaluation is of an earlier snapshot: evaluate again", style="yellow"))
     if view.hold:
         h = view.hold
-        txt = f"hold placed by {h.get('placed_by')}: {h.get('reason')}"
+        txt = f"hold placed by {one_line(h.get('placed_by'))}: {one_line(h.get('reason'))}"
         if not h.get("held"):
-            txt += f" · released by {h.get('released_by')}: {h.get('release_reason')}"
+            txt += f" · released by {one_line(h.get('released_by'))}: {one_line(h.get('release_reason'))}"
         lines.append(Text(("⏸ " if h.get("held") else "▶ ") + txt))
     if view.disposition:
         d = view.disposition
-        lines.append(Text(f"⚖ disposition by {d['by']}: {d['decision']}: {d['reason']}"
-                          + (f" (result: {d['result']})" if d.get("result") else ""), style="bold"))
-    allowed = roles.allowed_actions(role, [e.kind for e in view.events])
-    lines.append(Text(f"{actor} ({role}) may now: {', '.join(allowed) or 'read only'}", style="dim"))
+        lines.append(Text(f"⚖ disposition by {one_line(d['by'])}: {one_line(d.get('words'))}: "
+                          f"{one_line(d.get('reason'))}"
+                          + (f" (result: {one_line(d['result'])})" if d.get("result") else ""), style="bold"))
+        for old in reversed(view.superseded):
+            lines.append(Text(f"  superseded: {one_line(old.get('words'))} by {one_line(old.get('by'))} "
+                              f"({one_line(old.get('reason'))})", style="dim"))
+    for o in view.origins:
+        lines.append(Text(f"⇩ {one_line(origin_text(o))}", style="yellow"))
+    allowed = roles.allowed_actions(role, view.events)
+    lines.append(Text(f"{one_line(actor)} ({role}) may now: {', '.join(allowed) or 'read only'}", style="dim"))
     return Group(*lines)
 
 
@@ -84,7 +98,7 @@ class RecordScreen(Screen):
         try:
             view = ctx.store.record(self.record_id)
         except DeviationError as exc:
-            self.notify(str(exc), severity="error")
+            self.notify(one_line(exc), severity="error", markup=False)
             return
         self.view = view
         self.query_one("#record-header", Static).update(record_header(view, ctx.actor, ctx.role))
@@ -113,20 +127,20 @@ class RecordScreen(Screen):
         try:
             role = roles.check_role(ctx.actor, ctx.role, "evaluate")
             view = ctx.store.record(self.record_id)
-            before = evaluation_summary(view.evaluation)
+            before = evaluation_summary(view.stored_evaluation)
             # The CLI's defaults: not conservative, the built-in rule set.
             ev = evaluate_into(ctx.store, self.record_id, view.snapshot, view.snapshot_seq,
                                conservative=False, rule_paths=None, actor=ctx.actor, role=role)
         except DeviationError as exc:
-            self.notify(str(exc), title="Refused", severity="error")
+            self.notify(one_line(exc), title="Refused", severity="error", markup=False)
             return
         after = evaluation_summary(ev)
         was = (f" (was F0 {before['delivered_F_min']:.3f} min, {before['disposition']})"
                if before and before.get("delivered_F_min") is not None else "")
         F = after.get("delivered_F_min")
-        self.notify(f"Record {self.record_id} re-evaluated by {ctx.actor} ({role}): "
+        self.notify(f"Record {self.record_id} re-evaluated by {one_line(ctx.actor)} ({role}): "
                     + (f"F0 {F:.3f} min, " if F is not None else "")
-                    + f"guidance {after.get('disposition')}{was}.", title="◐ Evaluated")
+                    + f"guidance {after.get('disposition')}{was}.", title="◐ Evaluated", markup=False)
         self.reload()
 
     def action_audit(self) -> None:

@@ -6,6 +6,7 @@ from rich.text import Text
 from textual.widgets import DataTable
 
 from deviation.guidance.wording import fmt_probability
+from deviation.records.text import one_line
 
 # (label, key in the evaluation JSON, how to show it)
 ROWS = (
@@ -45,8 +46,8 @@ def _fmt(value, how: str) -> str:
     if how == "b":
         return "yes" if value else "no"
     if how == "h":
-        return str(value)[:12] + "…"
-    return str(value)
+        return one_line(value)[:12] + "…"
+    return one_line(value)
 
 
 class ComparisonTable(DataTable):
@@ -69,4 +70,4 @@ class ComparisonTable(DataTable):
             info = key in ("engine_version", "guidance.rule_set_sha256") and a != b
             mark = Text("✗", style="bold red") if bad else (Text("≠", style="yellow") if info else Text("✓", style="green"))
             style = "bold red reverse" if bad else ("yellow" if info else "")
-            self.add_row(mark, label, Text(_fmt(a, how), style=style), Text(_fmt(b, how), style=style), key=key)
+            self.add_row(mark, Text(label), Text(_fmt(a, how), style=style), Text(_fmt(b, how), style=style), key=key)
