@@ -12,8 +12,8 @@ from pathlib import Path
 
 from deviation import __version__
 from deviation.cli.common import print_json
+from deviation.cli.options import add_reading_options
 from deviation.errors import DeviationError
-from deviation.records.replay import rule_set_from
 
 COMMANDS = {}
 
@@ -30,7 +30,9 @@ def _print_json(obj) -> None:
 
 
 def _load_rules(args):
-    return rule_set_from(args.rules)
+    from deviation.guidance import load_rule_set
+
+    return load_rule_set([Path(p) for p in (args.rules or [])])
 
 
 def _add_rules_option(p: argparse.ArgumentParser) -> None:
@@ -38,7 +40,8 @@ def _add_rules_option(p: argparse.ArgumentParser) -> None:
                    help="a plant rule file or folder laid over the default rules (repeatable)")
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The ``deviation`` parser; with ``command``, only that command's module is loaded."""
     parser = argparse.ArgumentParser(
         prog="deviation",
         description="Evaluate a thermal-process deviation of a low-acid canned food. "
@@ -50,8 +53,7 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("evaluate", help="evaluate a deviation case file")
     p.add_argument("case", help="case file (TOML)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
-    p.add_argument("--conservative", action="store_true",
-                   help="read between readings at the lower one; never credit more than the lower lethal rate")
+    add_reading_options(p)
     p.add_argument("--uncertainty", action="store_true",
                    help="Monte Carlo over fh, jh, initial temperature and spores (spreads from "
                         "[deviation.uncertainty] or the documented defaults)")
@@ -68,19 +70,43 @@ def build_parser() -> argparse.ArgumentParser:
     re_ = rsub.add_parser("explain", help="show each rule for a case: fired or not, and why")
     re_.add_argument("case")
     re_.add_argument("--json", action="store_true")
-    re_.add_argument("--conservative", action="store_true")
+    add_reading_options(re_)
     _add_rules_option(re_)
 
-    for register in _extensions():
+    for register in _extensions(command):
         register(sub)
     return parser
 
 
-def _extensions():
-    """Command groups that live in their own modules, each with ``register(subparsers)``."""
-    from deviation.cli import fit, process, records, report, tui, watch
+_CORE_COMMANDS = ("evaluate", "schema", "rules")
+# Command groups that live in their own modules (each with ``register(subparsers)``) and the
+# commands each adds, so that a command imports only its own module: `deviation evaluate` does
+# not pay for the store, the TUI or the fitting code. A command not listed here (help, a typo, a
+# command added to a module later) loads them all.
+_EXTENSION_COMMANDS = {
+    "records": ("record", "replay", "verify", "export", "import"),
+    "fit": ("fit",),
+    "report": ("report",),
+    "process": ("process",),
+    "watch": ("watch",),
+    "tui": ("tui",),
+    "review": ("review",),
+}
 
-    return [m.register for m in (records, fit, report, process, watch, tui)]
+
+def _extensions(command: str | None = None):
+    """``register`` of the command-group modules ``command`` needs (all of them by default)."""
+    import importlib
+
+    if command in _CORE_COMMANDS or command == "--version":
+        return []
+    wanted = [m for m, names in _EXTENSION_COMMANDS.items() if command in names] or list(_EXTENSION_COMMANDS)
+    return [importlib.import_module(f"deviation.cli.{m}").register for m in wanted]
+
+
+def _command_in(argv: list[str]) -> str | None:
+    """The command word of ``argv`` (its first argument; ``--version`` as itself), or None."""
+    return argv[0] if argv and (not argv[0].startswith("-") or argv[0] == "--version") else None
 
 
 @command("schema")
@@ -162,7 +188,8 @@ def _rules(args) -> int:
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
+    parser = build_parser(_command_in(argv))
     args = parser.parse_args(argv)
     if not args.command:
         parser.print_help()

@@ -54,6 +54,7 @@ from typing import Callable
 import numpy as np
 
 from deviation.errors import DeviationError, RecordError
+from deviation.guidance.vocabulary import INFORMATION_FLAG_CODES
 
 #: A retort below this, after the hold, is in cooling; the watch also waits for the predicted
 #: cold spot to fall below it before it calls the cycle done. The lethal rate at 100 °C is
@@ -75,7 +76,7 @@ MAX_SKIPPED_PER_READ = 50
 _ONCE = ("long-come-up", "low-initial-temperature", "short-hold", "process-temperature-not-reached",
          "record-ends-before-cooling", "scheduled-F-below-target", "alternate-process-met")
 # Flags that do not start a deviation record (not a finding about this cycle).
-_NOT_DEVIATIONS = ("alternate-process-met", "scheduled-F-below-target")
+_NOT_DEVIATIONS = INFORMATION_FLAG_CODES
 # Judged only once the retort is in cooling (or at the end).
 _AT_COOLING = ("short-hold", "process-temperature-not-reached")
 _EPS_MIN = 1e-6
@@ -300,7 +301,7 @@ class Watch:
     def __init__(self, process, *, lot: str, retort_id: str, initial_temperature_C: float | None = None,
                  lot_size_containers: int = 1, store=None, actor: str = "watch", role: str = "operator",
                  process_ref=None, source: str = "retort log", record_gap_limit_min: float = 2.0,
-                 cooling_done_C: float = COOLING_DONE_C, conservative: bool = False, rule_set=None,
+                 cooling_done_C: float = COOLING_DONE_C, conservative: bool = True, rule_set=None,
                  on_event: Callable[[dict], None] | None = None) -> None:
         from deviation.inputs.case import parse_case
         from deviation.records import roles
@@ -691,15 +692,14 @@ class Watch:
     def _late(self, line: str) -> str | None:
         """Why a new row's ``time_min`` is past :data:`MAX_RECORD_MIN` from the first row, or None
         (rows of an ISO ``time`` column are checked after the parse)."""
-        import csv
 
         header = self._header_index()
         if header is None or not line.strip() or line.strip().startswith("#"):
             return None
-        names = [n.strip().lower() for n in next(csv.reader([self._lines[header]]), [])]
+        names = [n.strip().lower() for n in _fields(self._lines[header])]
         if "time_min" not in names:
             return None
-        fields = next(csv.reader([line]), [])
+        fields = _fields(line)
         i = names.index("time_min")
         try:
             value = float(fields[i])
@@ -716,17 +716,16 @@ class Watch:
     @property
     def profile_first_min(self) -> float | None:
         """``time_min`` of the first reading kept (as written in the file), or None."""
-        import csv
 
         header = self._header_index()
         if header is None:
             return None
-        names = [n.strip().lower() for n in next(csv.reader([self._lines[header]]), [])]
+        names = [n.strip().lower() for n in _fields(self._lines[header])]
         if "time_min" not in names:
             return None
         for i in self._data_indices():
             try:
-                return float(next(csv.reader([self._lines[i]]))[names.index("time_min")])
+                return float(_fields(self._lines[i])[names.index("time_min")])
             except (IndexError, ValueError):
                 continue
         return None
@@ -737,14 +736,13 @@ class Watch:
 
     def _data_indices(self) -> list[int]:
         """Index in ``_lines`` of each reading the parsed profile holds, in order."""
-        import csv
 
         header = self._header_index()
         out = []
         for i, ln in enumerate(self._lines):
             if header is None or i <= header or not ln.strip() or ln.strip().startswith("#"):
                 continue
-            fields = next(csv.reader([ln]), [])
+            fields = _fields(ln)
             if any(f.strip() for f in fields):
                 out.append(i)
         return out
@@ -850,9 +848,22 @@ def check_header(lines: list[str], *, source: str) -> None:
             raise
 
 
+def _fields(line: str) -> list[str]:
+    """The CSV fields of one line; a stray carriage return or other break inside it (which the
+    csv module refuses) is read as plain commas, and the parse names what is wrong with the row."""
+    import csv
+
+    try:
+        return next(csv.reader([line]), [])
+    except csv.Error:
+        return line.split(",")
+
+
 def event_json(event: dict) -> str:
-    """One event as a JSON line (no NaN)."""
-    return json.dumps(event, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+    """One event as a JSON line (no NaN); characters a line reader splits on (NEL, the Unicode
+    line and paragraph separators) are escaped, so one event stays one line."""
+    text = json.dumps(event, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+    return text.replace("\x85", "\\u0085").replace("\u2028", "\\u2028").replace("\u2029", "\\u2029")
 
 
 __all__ = ["LogFollower", "Watch", "LogChanged", "LogTruncated", "LogRotated", "COOLING_DONE_C", "event_json",

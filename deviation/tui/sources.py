@@ -13,8 +13,11 @@ from pathlib import Path
 from typing import Any
 
 from deviation.errors import DeviationError
+from deviation.resources import shipped
 
-REPO_DEMO_CASES = Path(__file__).resolve().parents[2] / "demo_cases"
+# The demo plant: installed with the package (``deviation/_data/demo_cases``, where the wheel
+# maps the repository's ``demo_cases/``), else the checkout's own folder.
+REPO_DEMO_CASES = shipped("demo_cases")
 DEMO_ACTORS = {"operator": "olga", "supervisor": "sam", "process-authority": "pat", "auditor": "ada"}
 
 
@@ -198,13 +201,16 @@ def seed_demo(store, cases_dir: str | Path | None = None) -> dict:
                                   retort_id=dev.retort_id, process_id=proc.id)
         ev = evaluate_case(loaded).model_dump(mode="json")
         store.add_evaluation(rid, ev, actor=op, role="operator", snapshot_seq=1,
-                             options={"conservative": False, "what_if": True})
+                             options={"conservative": ev["conservative"], "what_if": True})
         if fate in ("held", "decided", "released"):
             store.place_hold(rid, reason="deviation found at the retort; set aside for evaluation",
                              actor=sup, role="supervisor")
         if fate == "released":
-            store.release_hold(rid, reason="process authority found the lot covered; hold lifted",
-                               actor=sup, role="supervisor")
+            # a held lot is released only by the process authority's disposition (which lifts it)
+            store.decide(rid, decision="release-after-evaluation",
+                         reason="the operator's 12-min extension and the authority's own heat penetration "
+                                "data for this fill cover the steam loss",
+                         actor=pa, role="process-authority")
         if fate == "decided":
             store.decide(rid, decision="reprocess", reason="delivered F0 short of the filed target",
                          result="reprocessed as filed", actor=pa, role="process-authority")

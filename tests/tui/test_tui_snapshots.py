@@ -19,6 +19,8 @@ NOW = datetime(2026, 11, 20, 8, 50, 0)
 def app_factory(tmp_path, monkeypatch):
     monkeypatch.delenv("DEVIATION_DB", raising=False)
     monkeypatch.delenv("DEVIATION_ROLE", raising=False)
+    # the store's chain key (a random one per store otherwise): the audit screen's head is stable
+    monkeypatch.setenv("DEVIATION_KEY", "5e" * 32)
     ids, ticks = count(1), count(0)
     monkeypatch.setattr("deviation.records.store.new_record_id", lambda: f"DR-SNAP{next(ids):05d}")
     def fixed_utc():
