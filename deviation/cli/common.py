@@ -58,8 +58,12 @@ def print_caution(console) -> None:
 
 
 def actor_of(args) -> str:
-    if args.actor:
-        return args.actor
+    if args.actor is not None:
+        name = args.actor.strip()
+        if not name or any(not ch.isprintable() for ch in name):
+            raise DeviationError(f"--actor {args.actor!r}: expected a person's name (printable, not blank); "
+                                 "the record says who did what", source="--actor")
+        return name
     try:
         return getpass.getuser()
     except Exception:  # noqa: BLE001

@@ -35,6 +35,7 @@ from deviation.cli.common import (
     store_of,
     usage_handler,
 )
+from deviation.cli.options import add_reading_options
 from deviation.errors import DeviationError
 
 _ENTRY_KEY_MAX = 36
@@ -97,8 +98,10 @@ def _cmd_new(args) -> int:
     try:
         ev = _evaluate_into(store, rid, snapshot, 1, args, actor, role,
                             event_id=f"{key}.evaluated" if key else None)
-    except DeviationError as exc:
+    except DeviationError as caught:
         # The deviation is on record even when the engine cannot evaluate it.
+        exc = caught  # kept past the except block, for the closure below
+
         def show_unevaluated() -> int:
             if args.json:
                 print_json({"id": rid, "state": "entered", "evaluated": False, "error": str(exc),
@@ -576,7 +579,7 @@ def register(subparsers) -> None:
 
     p = rsub.add_parser("new", help="enter a deviation from a case file and evaluate it (operator)")
     p.add_argument("case", help="case file (TOML)")
-    p.add_argument("--conservative", action="store_true", help="evaluate conservatively")
+    add_reading_options(p)
     p.add_argument("--process-version", default=None, help="version of the filed scheduled process")
     p.add_argument("--entry-key", metavar="KEY", default=None,
                    help="a key of this entry (e.g. terminal and sequence number): repeating the command with "
@@ -616,7 +619,7 @@ def register(subparsers) -> None:
     p.add_argument("id")
     p.add_argument("case", help="case file (TOML)")
     p.add_argument("--reason", required=True)
-    p.add_argument("--conservative", action="store_true")
+    add_reading_options(p)
     add_rules_option(p)
     add_common_options(p, acts=True)
     p.set_defaults(handler=_cmd_amend)
@@ -662,7 +665,7 @@ def register(subparsers) -> None:
 
     p = rsub.add_parser("evaluate", help="re-evaluate with the current engine and rules (appends 'evaluated')")
     p.add_argument("id")
-    p.add_argument("--conservative", action="store_true")
+    add_reading_options(p)
     add_rules_option(p)
     add_common_options(p, acts=True)
     p.set_defaults(handler=_cmd_evaluate)

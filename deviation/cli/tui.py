@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 
 
-
 def _run(args: argparse.Namespace) -> int:
     from deviation.tui import build_app, save_screens
 

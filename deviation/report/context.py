@@ -364,7 +364,8 @@ def _method(loaded, ev) -> dict[str, Any]:
             alpha = hp.thermal_diffusivity_m2_s or conduction.diffusivity_from_fh_cylinder(hp.fh_min, r_m, h_m)
             fh = hp.fh_min or conduction.fh_from_diffusivity_cylinder(alpha, r_m, h_m)
             model = ("Conduction heating of the geometric centre of a finite cylinder whose surface follows the "
-                     "retort temperature: the product of the infinite-cylinder Bessel series and the "
+                     "retort temperature (or, with a surface heat transfer coefficient filed, exchanges heat with "
+                     "it through a Biot boundary): the product of the infinite-cylinder Bessel series and the "
                      "infinite-slab cosine series (Carslaw & Jaeger). Thermal diffusivity and fh are related by "
                      "fh = ln 10 / (α (β1²/R² + π²/H²)), β1 = 2.4048 (Olson & Jackson 1942).")
             params.append(f"R = {_g(box.diameter_mm / 2, 'mm')}, H = {_g(box.height_mm, 'mm')}")
@@ -373,18 +374,31 @@ def _method(loaded, ev) -> dict[str, Any]:
             alpha = hp.thermal_diffusivity_m2_s or conduction.diffusivity_from_fh_brick(hp.fh_min, *dims)
             fh = hp.fh_min or conduction.fh_from_diffusivity_brick(alpha, *dims)
             model = ("Conduction heating of the geometric centre of a rectangular brick (tray) whose surface "
-                     "follows the retort temperature: the product of three infinite-slab cosine series "
+                     "follows the retort temperature (or a Biot boundary, with a surface heat transfer "
+                     "coefficient filed): the product of three infinite-slab cosine series "
                      "(Carslaw & Jaeger); thermal diffusivity from fh by the same first-term relation "
                      "(Olson & Jackson 1942).")
             params.append(f"{_g(box.length_mm)} × {_g(box.width_mm)} × {_g(box.thickness_mm, 'mm')}")
         params.append(f"thermal diffusivity α = {alpha:.4g} m²/s"
                       + ("" if hp.thermal_diffusivity_m2_s else " (derived from fh)"))
         params.append(f"fh = {fh:.4g} min" + ("" if hp.fh_min else " (derived from α)"))
+        if _htc(hp):
+            params.append(f"surface h = {_htc(hp):.4g} W/(m²·K), product k = {hp.thermal_conductivity_W_mK:.4g} "
+                          "W/(m·K) (Biot series; α from fh through the Biot eigenvalues)")
     else:
-        model = ("Heating-curve response of the cold spot after a step in retort temperature, "
-                 "S(t) = min(1, jh · 10^(−t/fh)) (Ball 1923)"
-                 + ("; cooling from steam-off with the same form in fc and jc." if hp.fc_min
-                    else "; cooling with the heating response (no separate fc given)."))
+        model = ("Ball's heating and cooling lines (Ball 1923) read as a band of step responses of the cold "
+                 "spot: every rise of the retort answered by Ball's lag form S(t) = min(1, max(jh, 1) · "
+                 "10^(−t/fh)), every fall by a two-stage response with the line j · 10^(−t/f) as asymptote "
+                 "(f = min(fh, fc), j = min(jh, jc)"
+                 + ("" if hp.fc_min else "; no fc filed: an immediate response, the least cooling credit")
+                 + "); the cold spot is the lowest any response within the band allows, so it never runs "
+                   "ahead of the product.")
+        if getattr(hp, "fh2_min", None) is not None:
+            model += (" Broken heating curve (Ball 1923; Stumbo 1973): the product thickens once, when its "
+                      "cold spot reaches the filed break temperature (never before the highest cold spot "
+                      "the curve allows could have); rises after that follow the second line, cooling fc.")
+            params.append(f"fh2 = {hp.fh2_min:.4g} min from xbh = {hp.break_min:.4g} min; break temperature "
+                          f"{hp.break_temperature_C:.4g} °C")
         params.append(f"fh = {hp.fh_min:.4g} min, jh = {hp.jh:.4g}")
         if hp.fc_min:
             params.append(f"fc = {hp.fc_min:.4g} min, jc = {(hp.jc or 1.0):.4g}"
@@ -405,12 +419,14 @@ def _method(loaded, ev) -> dict[str, Any]:
                    "no interval credited more than its lower lethal rate"]
     else:
         integration = "Trapezoidal rule on the cold-spot history (as in FAO Fisheries Technical Paper 285)."
-        options = ["none (re-run with --conservative to read the record at the bottom of the trace)"]
+        options = ["none: read with straight lines between readings (--interpolate), a friendlier figure than "
+                   "the default reading at the bottom of the trace"]
     micro = p.microbiology
     spoilage = (f"Spoilage: N = N0 · 10^(−F/D) survivors per container with D = {_g(micro.spoilage_D_min, 'min')} "
                 f"and N0 = {_g(micro.spores_per_container)}; the probability that a container is nonsterile is "
                 "1 − exp(−N) (Poisson); expected nonsterile containers in the lot = probability × lot size. "
-                f"Botulinum: log reductions F/D with D = {_g(micro.botulinum_D_min, 'min')}, against "
+                f"Botulinum: log reductions F0/D (F0 at 121.1 °C, z 10 °C, whatever the spoilage organism's z) "
+                f"with D = {_g(micro.botulinum_D_min, 'min')}, against "
                 f"{_g(micro.botulinum_log_reductions_required)} (12D, Stumbo 1973).")
     scheduled = ("Scheduled-process F0: the same model run on the filed cycle (come-up ramp, hold at process "
                  "temperature, cooling) from the minimum initial temperature, as a check that the model "
@@ -427,11 +443,37 @@ def _results(ev) -> dict[str, Any]:
     rows = [
         _row("Delivered F0 at the cold spot", _num(ev.delivered_F_min, 2, "min"),
              ("meets" if margin >= 0 else "BELOW") + f" the filed target by {_num(abs(margin))} min"),
+    ]
+    if getattr(ev, "F_basis", None):
+        rows.append(_row("What the delivered figure is", "", ev.F_basis))
+    model_F, interpolated = getattr(ev, "model_F_min", None), getattr(ev, "interpolated_F_min", None)
+    if model_F is not None and abs(model_F - ev.delivered_F_min) > 1e-9:
+        rows.append(_row("Model F on the record", _num(model_F, 2, "min"), "before the relative correction"))
+    if interpolated is not None and abs(interpolated - (model_F if model_F is not None else ev.delivered_F_min)) > 1e-9:
+        rows.append(_row("Interpolated F (not used by the guidance)", _num(interpolated, 2, "min"),
+                         "straight lines between readings, heat credited across gaps: a friendlier figure"))
+    F0 = getattr(ev, "F0_min", None)
+    if F0 is not None and abs(F0 - ev.delivered_F_min) > 1e-9:
+        rows.append(_row("F0 (121.1 °C, z 10 °C) of the same cold spot", _num(F0, 2, "min"), "the botulinum figure"))
+    broken = getattr(ev, "broken_curve", None)
+    if broken:
+        when = ("did not thicken on this record" if broken.get("earliest_break_min") is None else
+                f"thickened from {_num(broken['earliest_break_min'], 1)} min (earliest)"
+                + ("" if broken.get("latest_break_min") is None
+                   else f" to {_num(broken['latest_break_min'], 1)} min (surely)"))
+        rows.append(_row("Broken heating curve: break temperature", _num(broken["break_temperature_C"], 1, "°C"),
+                         f"as filed; fh {_g(broken['fh_min'])} then {_g(broken['fh2_min'])} min; on this record "
+                         f"the product {when}"))
+    rows += [
         _row("Filed target F0", _num(ev.target_F_min, 2, "min"), ""),
         _row("Scheduled-process F0 (model, filed cycle)", _num(ev.scheduled_F_min, 2, "min"),
              "model reproduces the target" if ev.scheduled_F_min >= ev.target_F_min
              else "model falls SHORT of the target: lethality not fully established"),
     ]
+    ball = getattr(ev, "ball_formula_F_min", None)
+    if ball is not None:
+        rows.append(_row("Scheduled-process F0 (Ball's formula)", _num(ball, 2, "min"),
+                         "the hand cross-check of the filed process"))
     if ev.cycle.running and ev.projected_F_min is not None:
         rows.append(_row("Projected F0 if the rest of the cycle runs as filed", _num(ev.projected_F_min, 2, "min"),
                          "the record ends while the cycle runs"))
@@ -480,12 +522,33 @@ def _results(ev) -> dict[str, Any]:
         "projected_F": (_num(ev.projected_F_min, 2) if ev.cycle.running and ev.projected_F_min is not None
                         else None),
         "uncertainty": _uncertainty(ev),
+        "affected": _affected(ev),
     }
+
+
+def _affected(ev) -> list[dict[str, str]]:
+    """A continuous system's entry-time ranges: every container inside the shell during a
+    deviation, and the unaffected ranges before and after (clock times where known)."""
+    out = []
+    for a in getattr(ev, "affected_containers", None) or []:
+        start = a.get("entry_start") or ""
+        end = a.get("entry_end") or ""
+        out.append({
+            "start": f"{_num(a['entry_start_min'])} min" + (f" ({start.replace('T', ' ')})" if start else ""),
+            "end": f"{_num(a['entry_end_min'])} min" + (f" ({end.replace('T', ' ')})" if end else ""),
+            "containers": f"{int(a['containers']):,}",
+            "min_F": _num(a["min_F_min"], 2, "min"),
+            "disposition": str(a.get("disposition", "")),
+        })
+    return out
 
 
 def _uncertainty(ev) -> dict[str, Any]:
     """The Monte Carlo figures of the evaluation, when it ran one."""
     mc = getattr(ev, "uncertainty", None)
+    if mc and "F_p50_min" not in mc and mc.get("reason"):
+        return {"computed": False, "rows": [],
+                "statement": f"The Monte Carlo estimate was not run: {mc['reason']}."}
     if not mc or "F_p50_min" not in mc:
         return {"computed": False, "rows": [],
                 "statement": ("No uncertainty estimate was run for this evaluation (the case has no "

@@ -221,3 +221,24 @@ def test_a_store_that_is_not_ours_is_exit_3_without_traceback(capsys, tmp_path):
         code, out, err = run(capsys, *argv, "--db", junk)
         assert code == 3 and "Traceback" not in err
         assert err.strip() == f"error: {junk}: is not a deviation record store (not an SQLite database file)"
+
+
+def test_a_record_the_engine_cannot_evaluate_is_kept_and_says_why(capsys, db, tmp_path):
+    # a continuous cooker filed with the heating-curve model: the engine refuses to evaluate it
+    # (its bounding pair is not a convolution), the deviation stays on record, entered
+    text = (REPO / "demo_cases" / "soup_reel_stop.toml").read_text()
+    text = text.replace('model = "conduction"\nfh_min = 7.0', 'model = "heating-curve"\nfh_min = 7.0\njh = 1.2')
+    case = tmp_path / "soup.toml"
+    case.write_text(text.replace('retort_log = "logs/', f'retort_log = "{REPO / "demo_cases" / "logs"}/'))
+    code, doc, _ = run_json(capsys, "record", "new", case, "--db", db, "--actor", "olga", "--role", "operator")
+    assert code != 0 and doc["state"] == "entered" and doc["evaluated"] is False
+    assert "linear cold-spot model" in doc["error"]
+    code, out, _ = run(capsys, "record", "new", case, "--db", db, "--actor", "olga", "--role", "operator")
+    assert "not evaluated" in out and "Traceback" not in out
+
+
+@pytest.mark.parametrize("actor", ["", "   ", "ol\x1bga"])
+def test_a_blank_or_unprintable_actor_is_refused(capsys, db, actor):
+    code, out, err = run(capsys, "record", "new", CASE, "--db", db, "--actor", actor, "--role", "operator")
+    assert code != 0 and out == ""
+    assert "--actor" in err and "person's name" in err

@@ -166,6 +166,39 @@ def test_conservative_report_states_the_options(rule_set):
     assert f"{ev.delivered_F_min:.2f} min" in md
 
 
+
+def test_a_continuous_systems_report_lists_the_entry_ranges(reports):
+    # issue 15: the report lists every entry-time range (clock times), affected or not
+    r = reports["soup_reel_stop"]
+    ranges = r["ev"].affected_containers
+    assert ranges and any(a["disposition"] != "unaffected" for a in ranges)
+    for text in (r["md"], r["html"], " ".join(r["pdf_pages"])):
+        assert "Containers of the stream" in text
+    md = r["md"]
+    for a in ranges:
+        row = f"| {a['containers']:,} | {a['min_F_min']:.2f} min | {a['disposition']} |"
+        assert row in md, row
+        assert a["entry_start"].replace("T", " ") in md
+    assert "Containers of the stream" not in reports["chili_temperature_drop"]["md"]
+
+
+def test_the_report_names_the_headline_basis_and_the_broken_curve(reports):
+    r = reports["pudding_steam_drop"]
+    ev, md = r["ev"], r["md"]
+    assert ev.F_basis and _flat(ev.F_basis)[:60] in _flat(md)
+    assert "Broken heating curve: break temperature" in md and "97.5 °C" in md
+    assert f"{ev.model_F_min:.2f} min" in md  # the model F before the relative correction
+    assert f"{ev.ball_formula_F_min:.2f} min" in md
+    assert "thickens once" in md  # the method says how the break is read
+
+
+def test_a_monte_carlo_not_run_says_why(rule_set):
+    loaded = load_case(ROOT / "demo_cases" / "pudding_steam_drop.toml")
+    ev = evaluate_case(loaded, rule_set=rule_set, what_if=False, uncertainty=True)
+    md = report.render_markdown(report.build_report_context(loaded, ev, rule_set=rule_set, with_plots=False))
+    assert "The Monte Carlo estimate was not run: a broken heating curve" in _flat(md)
+
+
 # ---------------------------------------------------------------------------------------------
 # HTML: well-formed and self-contained
 

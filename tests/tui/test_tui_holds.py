@@ -250,3 +250,36 @@ async def test_a_supervisor_cannot_release_an_undecided_lot_and_markup_is_shown_
         whats = [str(t.get_row_at(i)[4]) for i in range(t.row_count)]
         assert "see [/x] and [white on white]hidden[/]" in whats
     assert open_store(db).record(rid).state == "held"
+
+
+@sync
+async def test_the_board_shows_a_continuous_systems_affected_entries(db):
+    # issue 15: the holds board names the entry-time ranges of the row in focus
+    from deviation.evaluate import evaluate_case
+    from deviation.inputs.case import load_case
+
+    loaded = load_case(DEMO / "soup_reel_stop.toml")
+    ev = evaluate_case(loaded)
+    store = open_store(db)
+    rid = store.create_record(loaded.snapshot(), actor="olga", role="operator", lot=loaded.case.deviation.lot,
+                              retort_id="RS1", process_id=loaded.case.process.id)
+    store.add_evaluation(rid, ev.model_dump(mode="json"), actor="olga", role="operator", snapshot_seq=1,
+                         options={"conservative": True, "what_if": True})
+    store.close()
+    app = build_app(db=db, actor="sam", role="supervisor", clock=clock)
+    async with app.run_test(size=(100, 30)) as pilot:
+        await pilot.press("f3")
+        await pilot.pause()
+        board = app.screen
+        await pilot.press("slash", *"SOU-261118", "enter")
+        await pilot.pause()
+        assert board_lots(board) == ["SOU-261118-Q"]
+        detail = text_of(board.query_one("#board-detail"))
+        held = [a for a in ev.affected_containers if a["disposition"] != "unaffected"]
+        assert f"affected entries ({sum(a['containers'] for a in held):,} containers)" in detail
+        assert "2026-11-18 06:47:54" in detail
+        # a batch retort's record shows none
+        await pilot.press("slash", *["backspace"] * 12, *"CHL-261104", "enter")
+        await pilot.pause()
+        assert board_lots(board) == ["CHL-261104-A"]
+        assert text_of(board.query_one("#board-detail")).strip() == ""

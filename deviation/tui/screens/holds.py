@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from rich.console import Group
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
@@ -19,7 +20,7 @@ from textual.widgets import DataTable, Footer, Input, Static
 from deviation.errors import DeviationError
 from deviation.records.text import one_line
 from deviation.tui.screens.actions import run_record_action
-from deviation.tui.widgets.results import disposition_look
+from deviation.tui.widgets.results import affected_lines, disposition_look
 from deviation.tui.widgets.status import StatusLine
 from deviation.tui.widgets.steady_input import SteadyInput
 
@@ -105,6 +106,7 @@ class HoldsScreen(Screen):
         yield SteadyInput(placeholder="/ filter: lot, retort, process, state or guidance words", id="filter",
                     compact=True)
         yield DataTable(id="board", cursor_type="row", zebra_stripes=True)
+        yield Static("", id="board-detail")
         yield Static("", id="board-summary")
         yield Footer()
 
@@ -176,6 +178,20 @@ class HoldsScreen(Screen):
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
         self.query_one("#board", DataTable).focus()
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        """Under the board: a continuous system's affected entry ranges for the row in focus."""
+        if event.data_table.id != "board":
+            return
+        detail = self.query_one("#board-detail", Static)
+        rid = event.row_key.value if event.row_key is not None else None
+        lines: list = []
+        if rid:
+            try:
+                lines = affected_lines(self.app.ctx.store.record(rid).stored_evaluation or {}, most=3)
+            except DeviationError:
+                lines = []
+        detail.update(Group(*lines) if lines else "")
 
     def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
         if event.data_table.id == "board":

@@ -128,9 +128,9 @@ class RecordScreen(Screen):
             role = roles.check_role(ctx.actor, ctx.role, "evaluate")
             view = ctx.store.record(self.record_id)
             before = evaluation_summary(view.stored_evaluation)
-            # The CLI's defaults: not conservative, the built-in rule set.
+            # The CLI's defaults: the lower reading between samples, the built-in rule set.
             ev = evaluate_into(ctx.store, self.record_id, view.snapshot, view.snapshot_seq,
-                               conservative=False, rule_paths=None, actor=ctx.actor, role=role)
+                               conservative=True, rule_paths=None, actor=ctx.actor, role=role)
         except DeviationError as exc:
             self.notify(one_line(exc), title="Refused", severity="error", markup=False)
             return

@@ -101,9 +101,12 @@ def running_head(ev: Evaluation, from_log: bool, running: bool,
     return head + disposition_text(g.get("disposition"))
 
 
-def affected_lines(ev: Evaluation, most: int = 4) -> list[Text]:
-    """A continuous system's affected entry ranges (clock times where known), worst first."""
-    ranges = [a for a in (ev.affected_containers or []) if a.get("disposition") != "unaffected"]
+def affected_lines(ev, most: int = 4) -> list[Text]:
+    """A continuous system's affected entry ranges (clock times where known), worst first.
+
+    ``ev``: an Evaluation, or a stored evaluation (a dict with ``affected_containers``)."""
+    found = ev.get("affected_containers") if isinstance(ev, dict) else ev.affected_containers
+    ranges = [a for a in (found or []) if a.get("disposition") != "unaffected"]
     if not ranges:
         return []
     ranges.sort(key=lambda a: a["min_F_min"])
