@@ -151,9 +151,13 @@ def extension_to_target(loaded: LoadedCase, profile: prof.RetortProfile, analysi
             return None, f"no extension up to {_EXTENSION_LIMIT_MIN:.0f} min reaches the target"
     from scipy.optimize import brentq  # only a lot below its target needs the search
 
-    root = brentq(F_with, 0.0, hi, xtol=0.01)
-    # Round up to the next 0.1 min: never report less time than the target needs.
-    return math.ceil(root * 10.0 - 1e-9) / 10.0, None
+    root = brentq(F_with, hi / 2.0 if hi > 5.0 else 0.0, hi, xtol=0.02)
+    # Round up to the next 0.1 min and check it: never report less time than the target needs
+    # (the root is known to within its tolerance, on either side).
+    extra = math.ceil(root * 10.0 - 1e-9) / 10.0
+    while F_with(extra) < 0.0:
+        extra = round(extra + 0.1, 1)
+    return extra, None
 
 
 def monte_carlo(loaded: LoadedCase, profile: prof.RetortProfile, model: ColdSpotModel, spec,
