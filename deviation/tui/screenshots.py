@@ -71,11 +71,13 @@ async def save_screens(out_dir, *, cases_dir=None) -> list[str]:
         await pilot.press("d")
         await pilot.pause()
         d = app.screen
-        d.query_one("#field-decision", Input).value = "reprocess"
+        d.query_one("#field-decision", Select).value = "reprocess"
         d.query_one("#field-reason", Input).value = "F0 short of the filed target; reprocess as filed"
         await pilot.pause()
         shot("5-disposition-dialog")
-        await pilot.press("ctrl+s")
+        await pilot.press("ctrl+s")  # the summary to confirm before it is written
+        await pilot.pause()
+        await pilot.press("y")
         await settle(pilot)
         app.set_identity("ada", "auditor")
         app.open_audit(rid)
