@@ -74,6 +74,14 @@ def role_of(args) -> str | None:
     return args.role or os.environ.get("DEVIATION_ROLE") or None
 
 
+def acting(args, action: str) -> tuple[str, str]:
+    """Who acts and in which role, checked for ``action`` before anything is read or written."""
+    from deviation.records import roles
+
+    actor = actor_of(args)
+    return actor, roles.check_role(actor, role_of(args), action)
+
+
 def store_of(args):
     from deviation.records.store import open_store
 

@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import Callable
 
 from deviation.cli.common import (
-    actor_of,
+    acting,
     add_common_options,
     add_rules_option,
     after_write,
@@ -31,7 +31,6 @@ from deviation.cli.common import (
     plain,
     print_caution,
     print_json,
-    role_of,
     store_of,
     usage_handler,
 )
@@ -83,10 +82,8 @@ def _entry_key(args) -> str | None:
 
 
 def _cmd_new(args) -> int:
-    from deviation.records import roles
 
-    actor, role = actor_of(args), role_of(args)
-    role = roles.check_role(actor, role, "enter")
+    actor, role = acting(args, "enter")
     key = _entry_key(args)
     store = store_of(args)
     loaded, snapshot, ref = _load(args, store)
@@ -134,10 +131,8 @@ def _cmd_new(args) -> int:
 
 
 def _cmd_amend(args) -> int:
-    from deviation.records import roles
 
-    actor = actor_of(args)
-    role = roles.check_role(actor, role_of(args), "amend")
+    actor, role = acting(args, "amend")
     store = store_of(args)
     _, snapshot, _ = _load(args, store)
     event = store.amend(args.id, snapshot, reason=args.reason, actor=actor, role=role)
@@ -159,10 +154,8 @@ def _cmd_amend(args) -> int:
 
 
 def _cmd_evaluate(args) -> int:
-    from deviation.records import roles
 
-    actor = actor_of(args)
-    role = roles.check_role(actor, role_of(args), "evaluate")
+    actor, role = acting(args, "evaluate")
     store = store_of(args)
     view = store.record(args.id)
     before = _summary(view.stored_evaluation)
@@ -224,10 +217,8 @@ def _show_event(args, store, event, actor: str, role: str) -> Callable[[], int]:
 
 def _simple(action: str, write: Callable) -> Callable[[argparse.Namespace], int]:
     def handler(args) -> int:
-        from deviation.records import roles
 
-        actor = actor_of(args)
-        role = roles.check_role(actor, role_of(args), action)
+        actor, role = acting(args, action)
         store = store_of(args)
         event = write(store, args, actor, role)
         return after_write(f"{event.kind} (event {event.seq}) of record {args.id}",
@@ -245,8 +236,7 @@ _cmd_note = _simple("note", lambda s, a, actor, role: s.note(a.id, a.text, actor
 def _cmd_decide(args) -> int:
     from deviation.records import roles
 
-    actor = actor_of(args)
-    role = roles.check_role(actor, role_of(args), "decide")
+    actor, role = acting(args, "decide")
     code = roles.decision_code(args.decision)
     if code is None:
         raise DeviationError(f"'{args.decision}' is not a disposition; choose one of: release-after-evaluation "
@@ -470,11 +460,10 @@ def _cmd_export(args) -> int:
 
 
 def _cmd_import(args) -> int:
-    from deviation.records import keys, roles
+    from deviation.records import keys
     from deviation.records.bundles import read_bundle
 
-    actor = actor_of(args)
-    role = roles.check_role(actor, role_of(args), "import")
+    actor, role = acting(args, "import")
     bundle = read_bundle(args.file)
     source_key = keys.read_key_file(args.source_key) if args.source_key else None
     store = store_of(args)
