@@ -4,5 +4,5 @@ The numerical core (``deviation.physics.heating``, ``deviation.physics.lethality
 is pure numpy/scipy. ``deviation.evaluate`` is the one pipeline that wires it together.
 """
 
-__version__ = "0.2.0"
+__version__ = "0.2.1"
 ENGINE_VERSION = __version__

@@ -165,10 +165,16 @@ def _kind_name(kind: str) -> str:
         raise ValueError(f"kind must be 'retort' or 'cold-spot', got {kind!r}") from None
 
 
+def split_lines(text: str) -> list[str]:
+    """The lines of a record as every reader counts them: ``\r\n``, a lone ``\r`` and ``\n``
+    each end a line (so line numbers in messages agree between ``evaluate`` and ``watch``)."""
+    return _LINE_BREAK.split(text)
+
+
 def _data_lines(text: str) -> list[tuple[int, str]]:
     """(file line number, line) for every line that is not blank and not a ``#`` comment."""
     kept = []
-    for number, line in enumerate(_LINE_BREAK.split(text), start=1):
+    for number, line in enumerate(split_lines(text), start=1):
         stripped = line.strip()
         if stripped and not stripped.startswith("#"):
             kept.append((number, line))

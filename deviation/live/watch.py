@@ -249,10 +249,13 @@ class LogFollower:
                               source=str(self.path)) from None
         if self.offset == 0 and text.startswith("\ufeff"):
             text = text[1:]
-        lines = text.split("\n")
+        from deviation.inputs.logs import split_lines
+
+        # a lone CR ends a line here as it does for the log reader, or the two would number
+        # the rows differently and a bad row's report would name (and leave out) its neighbour
+        lines = split_lines(text)
         if lines and lines[-1] == "":
             lines.pop()
-        lines = [ln[:-1] if ln.endswith("\r") else ln for ln in lines]
         self.offset += len(chunk)
         self.lines_read += len(lines)
         self._keep(chunk)
