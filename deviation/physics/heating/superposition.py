@@ -216,14 +216,18 @@ def _bounding_envelope(
     inner_first = latest // sub  # oldest whole sample
     table = _sparse_minima(history, int(max(1, (inner_first - inner_last).max() + 1)))
     excess = np.zeros(n)
-    buf = np.empty(n)
+    keep = weight > 0.0
+    earliest, latest, inner_last, inner_first, weight = (
+        earliest[keep], latest[keep], inner_last[keep], inner_first[keep], weight[keep])
+    # each window's minima fill one row of a block; the block is weighted and summed by one
+    # matrix product (about 2**16 values: the block stays in the processor's cache)
+    rows = max(1, min(weight.size, (1 << 16) // n))
+    block = np.empty((rows, n))
     end = np.empty(n)
-    for a, b, i_new, i_old, q in zip(
-        earliest.tolist(), latest.tolist(), inner_last.tolist(), inner_first.tolist(),
-        weight.tolist(),
-    ):
-        if q <= 0.0:
-            continue
+    j = 0
+    for a, b, i_new, i_old in zip(earliest.tolist(), latest.tolist(), inner_last.tolist(),
+                                  inner_first.tolist()):
+        buf = block[j % rows]
         if i_old >= i_new:  # whole samples inside the window: sparse-table minimum
             w = i_old - i_new + 1
             k = w.bit_length() - 1
@@ -245,12 +249,19 @@ def _bounding_envelope(
             np.multiply(rise[start:start + n], frac_new, out=end)
             end += history[start:start + n]
             np.minimum(buf, end, out=buf)
-        # a window reaching before t = 0 holds T_0 (excess 0), which the interpolation across
-        # t = 0 would blur
-        np.minimum(buf[: min(n, -(-b // sub))], 0.0, out=buf[: min(n, -(-b // sub))])
-        buf[: min(n, -(-a // sub))] = 0.0
-        buf *= q
-        excess += buf
+        if sub > 1:
+            # A window reaching before t = 0 holds T_0 (excess 0), which the interpolation across
+            # t = 0 would blur, for one output sample at each end: every earlier one already
+            # takes in a zero padding the history (with whole samples only, sub = 1, all do).
+            c = min(n, -(-b // sub))
+            if i_old < c:
+                np.minimum(buf[i_old:c], 0.0, out=buf[i_old:c])
+            buf[max(0, i_new - 1): min(n, i_new)] = 0.0
+        j += 1
+        if j % rows == 0:
+            excess += weight[j - rows:j] @ block
+    if j % rows:
+        excess += weight[j - j % rows:j] @ block[: j % rows]
     return t0 + excess
 
 

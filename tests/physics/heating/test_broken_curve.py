@@ -236,7 +236,9 @@ def test_record_model_on_a_single_step(jh):
     t_e = res.earliest_break_min
     assert res.latest_break_min == pytest.approx(XBH, abs=1e-6)
     assert XBH - 1.0 < t_e <= XBH + 1e-9
-    before = t <= t_e
+    # strictly before: t_e can fall on a grid time within rounding (19.8 or 19.799999999999986
+    # min by the order of a sum), and from the grid time at t_e on the model answers as broken
+    before = t < t_e - 1e-9
     np.testing.assert_allclose(res.cold_spot_C[before], exact[before], rtol=0.0, atol=1e-9)
     assert np.all(res.cold_spot_C <= exact + 1e-9)
     moved = TR_C - (TR_C - IT_C) * rising_unaccomplished_broken(t, FH, jh, FH2, t_e)
