@@ -223,7 +223,9 @@ def _bounding_envelope(
     # matrix product (about 2**16 values: the block stays in the processor's cache)
     rows = max(1, min(weight.size, (1 << 16) // n))
     block = np.empty((rows, n))
-    end = np.empty(n)
+    # the record read m/sub of a step after each sample, m = 1..sub-1: a window's end between
+    # samples is one of these, shifted
+    between = [None] + [history[:-1] + rise * (m / sub) for m in range(1, sub)]
     j = 0
     for a, b, i_new, i_old in zip(earliest.tolist(), latest.tolist(), inner_last.tolist(),
                                   inner_first.tolist()):
@@ -237,18 +239,14 @@ def _bounding_envelope(
             np.minimum(level[start:start + n], level[other:other + n], out=buf)
         else:
             buf.fill(np.inf)
-        frac_old = (b - i_old * sub) / sub  # window's oldest end, this far before sample i_old
-        if frac_old > 0.0:
+        m_old = b - i_old * sub  # window's oldest end, m_old/sub of a step before sample i_old
+        if m_old > 0:
             start = pad - i_old - 1
-            np.multiply(rise[start:start + n], 1.0 - frac_old, out=end)
-            end += history[start:start + n]
-            np.minimum(buf, end, out=buf)
-        frac_new = (i_new * sub - a) / sub  # newest end, this far after sample i_new
-        if frac_new > 0.0:
+            np.minimum(buf, between[sub - m_old][start:start + n], out=buf)
+        m_new = i_new * sub - a  # newest end, m_new/sub of a step after sample i_new
+        if m_new > 0:
             start = pad - i_new
-            np.multiply(rise[start:start + n], frac_new, out=end)
-            end += history[start:start + n]
-            np.minimum(buf, end, out=buf)
+            np.minimum(buf, between[m_new][start:start + n], out=buf)
         if sub > 1:
             # A window reaching before t = 0 holds T_0 (excess 0), which the interpolation across
             # t = 0 would blur, for one output sample at each end: every earlier one already
