@@ -184,3 +184,77 @@ def test_temperature_low_event_never_raises_a_reading(profile, data):
     inside = (lowered.time_min >= start) & (lowered.time_min <= end)
     assert np.all(lowered.temperature_C[inside] <= low_C)
     assert lowered.source == "hypothesis + events"
+
+
+# -- the columns read at once give what the rows read one by one give ----------------------------
+
+stamp_text = st.one_of(
+    st.datetimes(min_value=__import__("datetime").datetime(1, 1, 1),
+                 max_value=__import__("datetime").datetime(9999, 12, 31, 23, 59, 59)).map(
+        lambda d: d.replace(microsecond=0).isoformat()),
+    st.builds(lambda y, mo, d, h, mi, s: f"{y:04d}-{mo:02d}-{d:02d}T{h:02d}:{mi:02d}:{s:02d}",
+              st.integers(0, 10000), st.integers(0, 13), st.integers(0, 32), st.integers(0, 25),
+              st.integers(0, 61), st.integers(0, 61)),
+    st.sampled_from(["2026-12-01T05:30:00+01:00", "2026-12-01 05:30:00", "2026-12-01T05:30",
+                     "2026-12-01T05:30:00.5", " 2026-12-01T05:30:00", "20261201T053000", "",
+                     "2026-12-01T05:30:00Z", "2026-12-01", "NaT", "today"]),
+)
+
+
+def _both_ways(text, monkeypatch):
+    import deviation.inputs.logs as logs
+
+    def read():
+        try:
+            p = parse_log_text(text, source="fast.csv")
+            return ("profile", p.time_min.tolist(), p.temperature_C.tolist())
+        except RecordError as error:
+            return ("error", error.message)
+
+    fast = read()
+    with monkeypatch.context() as m:
+        m.setattr(logs, "_fast_columns", lambda *a, **k: None)
+        slow = read()
+    return fast, slow
+
+
+@settings(max_examples=400, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(start=st.datetimes(min_value=__import__("datetime").datetime(1, 1, 2),
+                          max_value=__import__("datetime").datetime(9999, 12, 30)),
+       steps=st.lists(st.integers(-5, 400), min_size=1, max_size=30),
+       odd=st.lists(st.tuples(st.integers(0, 30), stamp_text), max_size=3),
+       temperature=st.floats(20.0, 130.0))
+def test_timestamps_read_at_once_as_row_by_row(start, steps, odd, temperature, monkeypatch):
+    # The ISO column read at once by numpy (datetime64) against datetime.fromisoformat row by
+    # row: the same minutes, or the same message, for well-formed days with a few odd cells.
+    from datetime import timedelta
+
+    start = start.replace(microsecond=0)
+    stamps, now = [], start
+    for s in steps:
+        now = now + timedelta(seconds=s)
+        stamps.append(now.isoformat())
+    for i, text in odd:
+        if i < len(stamps):
+            stamps[i] = text
+    body = "".join(f"{s},{temperature + 0.01 * k:.2f}\n" for k, s in enumerate(stamps))
+    fast, slow = _both_ways("time,temperature_C\n" + body, monkeypatch)
+    assert fast == slow
+
+
+def test_a_recorder_day_is_read_at_once():
+    # The form recorders write (and the review's demo day): the fast reading is taken, and its
+    # minutes are those of the row-by-row reading.
+    from datetime import datetime, timedelta
+
+    import deviation.inputs.logs as logs
+
+    start = datetime(2026, 12, 1, 5, 30)
+    cells = [(start + timedelta(seconds=k)).isoformat() for k in range(7621)]
+    minutes = logs._fast_timestamps(cells)
+    assert minutes is not None
+    assert minutes.tolist() == [k / 60.0 for k in range(7621)]
+    assert logs._fast_timestamps(cells[:-1] + ["2026-12-01T07:37:00+01:00"]) is None
+    assert logs._fast_timestamps(cells[:-1] + ["2026-02-30T07:37:00"]) is None
+    # found by the property test above: numpy reads "NaT" (not a time) and writes it back alike
+    assert logs._fast_timestamps(cells[:-1] + ["NaT"]) is None
