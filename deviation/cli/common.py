@@ -104,6 +104,36 @@ def add_rules_option(p: argparse.ArgumentParser) -> None:
                    help="a plant rule file or folder laid over the default rules (repeatable)")
 
 
+#: Arguments of :func:`command`: a record or process id, and the reason every change of state gives.
+ID = (("id",), {})
+REASON = (("--reason",), {"required": True})
+
+
+def command(sub, name: str, handler: Callable[[argparse.Namespace], int], *, acts: bool,
+            arguments=(), **parser_options) -> argparse.ArgumentParser:
+    """A sub-command: its parser (``parser_options``: help, description), then ``arguments`` in
+    order (``(names, options)`` pairs for ``add_argument``, or a function that adds a group,
+    e.g. ``add_rules_option``), the common options and the handler."""
+    p = sub.add_parser(name, **parser_options)
+    for argument in arguments:
+        if callable(argument):
+            argument(p)
+        else:
+            names, options = argument
+            p.add_argument(*names, **options)
+    add_common_options(p, acts=acts)
+    p.set_defaults(handler=handler)
+    return p
+
+
+def command_group(subparsers, name: str, *, help: str, dest: str):
+    """A command with sub-commands (``deviation record …``): alone it prints its usage; returns
+    the sub-parsers to add the sub-commands to."""
+    top = subparsers.add_parser(name, help=help)
+    top.set_defaults(handler=usage_handler(top))
+    return top.add_subparsers(dest=dest, metavar="SUBCOMMAND")
+
+
 def usage_handler(parser: argparse.ArgumentParser) -> Callable[[argparse.Namespace], int]:
     def handler(args) -> int:
         parser.print_help(sys.stderr)

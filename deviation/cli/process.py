@@ -8,8 +8,11 @@ OS user), ``--role ROLE`` where a command writes (filing and retiring need proce
 from __future__ import annotations
 
 from deviation.cli.common import (
+    ID,
+    REASON,
     actor_of,
-    add_common_options,
+    command,
+    command_group,
     caution_text,
     esc,
     make_console,
@@ -18,7 +21,6 @@ from deviation.cli.common import (
     print_json,
     role_of,
     store_of,
-    usage_handler,
 )
 
 
@@ -151,37 +153,25 @@ def _cmd_retire(args) -> int:
 
 def register(subparsers) -> None:
     """Add the ``process`` commands to the ``deviation`` sub-parsers."""
-    top = subparsers.add_parser("process", help="the library of filed scheduled processes")
-    top.set_defaults(handler=usage_handler(top))
-    sub = top.add_subparsers(dest="process_command", metavar="SUBCOMMAND")
+    sub = command_group(subparsers, "process", help="the library of filed scheduled processes",
+                        dest="process_command")
 
-    p = sub.add_parser("add", help="file a scheduled process, or a new version of one (process authority)",
-                       description="File a process file (the [process] table of the case contract with "
-                                   "its sub-tables, as in demo_cases/processes/). Filing an id again adds "
-                                   "the next version; nothing is overwritten.")
-    p.add_argument("file", help="process file (TOML)")
-    p.add_argument("--reason", default=None,
-                   help="why it is filed; required when the model's scheduled-process F0 is below the target")
-    add_common_options(p, acts=True)
-    p.set_defaults(handler=_cmd_add)
-
-    p = sub.add_parser("list", help="filed processes (latest version of each active id)")
-    p.add_argument("--all", action="store_true", help="include retired processes")
-    p.add_argument("--versions", action="store_true", help="every version, not only the latest")
-    add_common_options(p, acts=False)
-    p.set_defaults(handler=_cmd_list)
-
-    p = sub.add_parser("show", help="one filed process, with its versions")
-    p.add_argument("id")
-    p.add_argument("--version", type=int, default=None, metavar="N", help="version (default: the latest)")
-    add_common_options(p, acts=False)
-    p.set_defaults(handler=_cmd_show)
-
-    p = sub.add_parser("retire", help="retire a process id (process authority); history is kept")
-    p.add_argument("id")
-    p.add_argument("--reason", required=True)
-    add_common_options(p, acts=True)
-    p.set_defaults(handler=_cmd_retire)
-
+    command(sub, "add", _cmd_add, acts=True, arguments=(
+        (("file",), {"help": "process file (TOML)"}),
+        (("--reason",), {"default": None, "help": "why it is filed; required when the model's scheduled-process "
+                                                  "F0 is below the target"}),
+    ), help="file a scheduled process, or a new version of one (process authority)",
+        description="File a process file (the [process] table of the case contract with its sub-tables, as "
+                    "in demo_cases/processes/). Filing an id again adds the next version; nothing is "
+                    "overwritten.")
+    command(sub, "list", _cmd_list, acts=False, arguments=(
+        (("--all",), {"action": "store_true", "help": "include retired processes"}),
+        (("--versions",), {"action": "store_true", "help": "every version, not only the latest"}),
+    ), help="filed processes (latest version of each active id)")
+    command(sub, "show", _cmd_show, acts=False, arguments=(
+        ID, (("--version",), {"type": int, "default": None, "metavar": "N", "help": "version (default: the latest)"}),
+    ), help="one filed process, with its versions")
+    command(sub, "retire", _cmd_retire, acts=True, arguments=(ID, REASON),
+            help="retire a process id (process authority); history is kept")
 
 __all__ = ["register"]

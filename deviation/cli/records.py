@@ -21,18 +21,20 @@ from pathlib import Path
 from typing import Callable
 
 from deviation.cli.common import (
+    ID,
+    REASON,
     acting,
-    add_common_options,
     add_rules_option,
     after_write,
     caution_text,
     esc,
     make_console,
+    command,
+    command_group,
     plain,
     print_caution,
     print_json,
     store_of,
-    usage_handler,
 )
 from deviation.cli.options import add_reading_options
 from deviation.errors import DeviationError
@@ -112,21 +114,11 @@ def _cmd_new(args) -> int:
 
         return after_write(f"record {rid}", show_unevaluated)
 
-    def show() -> int:
-        view = store.record(rid)
-        if args.json:
-            print_json({"id": rid, "state": view.state, "lot": dev.lot, "retort_id": dev.retort_id,
-                        "process_id": proc.id, "evaluated": True, "evaluation": _summary(ev),
-                        "head_hash": view.head_hash, "caution": caution_text()})
-            return 0
-        c = make_console()
-        c.print(f"[bold]Record {rid}[/bold] entered and evaluated: lot {esc(dev.lot)}, retort "
-                f"{esc(dev.retort_id)}, process {esc(proc.id)}")
-        _print_eval_line(c, ev)
-        c.print(f"state: {view.state}. A supervisor holds it: deviation record hold {rid} --reason ...")
-        print_caution(c)
-        return 0
-
+    show = _show_evaluated(
+        args, store, rid, ev, {"lot": dev.lot, "retort_id": dev.retort_id, "process_id": proc.id, "evaluated": True},
+        lambda view: ([f"[bold]Record {rid}[/bold] entered and evaluated: lot {esc(dev.lot)}, retort "
+                       f"{esc(dev.retort_id)}, process {esc(proc.id)}"],
+                      [f"state: {view.state}. A supervisor holds it: deviation record hold {rid} --reason ..."]))
     return after_write(f"record {rid}", show)
 
 
@@ -138,18 +130,10 @@ def _cmd_amend(args) -> int:
     event = store.amend(args.id, snapshot, reason=args.reason, actor=actor, role=role)
     ev = _evaluate_into(store, args.id, snapshot, event.seq, args, actor, role)
 
-    def show() -> int:
-        view = store.record(args.id)
-        if args.json:
-            print_json({"id": args.id, "state": view.state, "amended_seq": event.seq,
-                        "evaluation": _summary(ev), "head_hash": view.head_hash, "caution": caution_text()})
-            return 0
-        c = make_console()
-        c.print(f"[bold]Record {args.id}[/bold] amended (event {event.seq}: {esc(args.reason)}) and re-evaluated")
-        _print_eval_line(c, ev)
-        print_caution(c)
-        return 0
-
+    show = _show_evaluated(
+        args, store, args.id, ev, {"amended_seq": event.seq},
+        lambda view: ([f"[bold]Record {args.id}[/bold] amended (event {event.seq}: {esc(args.reason)}) and "
+                       "re-evaluated"], []))
     return after_write(f"the amendment of record {args.id}", show)
 
 
@@ -161,21 +145,38 @@ def _cmd_evaluate(args) -> int:
     before = _summary(view.stored_evaluation)
     ev = _evaluate_into(store, args.id, view.snapshot, view.snapshot_seq, args, actor, role)
 
-    def show() -> int:
-        after = store.record(args.id)
-        if args.json:
-            print_json({"id": args.id, "state": after.state, "previous": before, "evaluation": _summary(ev),
-                        "head_hash": after.head_hash, "caution": caution_text()})
-            return 0
-        c = make_console()
-        c.print(f"[bold]Record {args.id}[/bold] re-evaluated (event {after.events[-1].seq})")
+    def lines(after) -> tuple[list[str], list[str]]:
+        head = [f"[bold]Record {args.id}[/bold] re-evaluated (event {after.events[-1].seq})"]
         if before and isinstance(before.get("delivered_F_min"), (int, float)):
-            c.print(f"  before: F0 {before['delivered_F_min']:.3f} min, guidance {esc(before['disposition'])}")
+            head.append(f"  before: F0 {before['delivered_F_min']:.3f} min, guidance {esc(before['disposition'])}")
+        return head, []
+
+    show = _show_evaluated(args, store, args.id, ev, {"previous": before}, lines)
+    return after_write(f"the evaluation of record {args.id}", show)
+
+
+def _show_evaluated(args, store, rid: str, ev: dict, fields: dict,
+                    lines: Callable[[object], tuple[list[str], list[str]]]) -> Callable[[], int]:
+    """What a write that evaluated shows once it is stored: JSON ``{id, state, **fields,
+    evaluation, head_hash, caution}``; text: ``lines(view)``'s first lines, the evaluation's
+    line, its last lines, the caution."""
+    def show() -> int:
+        view = store.record(rid)
+        if args.json:
+            print_json({"id": rid, "state": view.state, **fields, "evaluation": _summary(ev),
+                        "head_hash": view.head_hash, "caution": caution_text()})
+            return 0
+        head, tail = lines(view)
+        c = make_console()
+        for line in head:
+            c.print(line)
         _print_eval_line(c, ev)
+        for line in tail:
+            c.print(line)
         print_caution(c)
         return 0
 
-    return after_write(f"the evaluation of record {args.id}", show)
+    return show
 
 
 def _F(x) -> str:
@@ -562,136 +563,100 @@ def _add_period(p: argparse.ArgumentParser) -> None:
 
 def register(subparsers) -> None:
     """Add the record commands to the ``deviation`` sub-parsers."""
-    rec = subparsers.add_parser("record", help="deviation records: enter, hold, decide, show, list, log")
-    rec.set_defaults(handler=usage_handler(rec))
-    rsub = rec.add_subparsers(dest="record_command", metavar="SUBCOMMAND")
+    rsub = command_group(subparsers, "record", help="deviation records: enter, hold, decide, show, list, log",
+                         dest="record_command")
 
-    p = rsub.add_parser("new", help="enter a deviation from a case file and evaluate it (operator)")
-    p.add_argument("case", help="case file (TOML)")
-    add_reading_options(p)
-    p.add_argument("--process-version", default=None, help="version of the filed scheduled process")
-    p.add_argument("--entry-key", metavar="KEY", default=None,
-                   help="a key of this entry (e.g. terminal and sequence number): repeating the command with "
-                        "the same key after a failure returns the record already made, never a second one")
-    add_rules_option(p)
-    add_common_options(p, acts=True)
-    p.set_defaults(handler=_cmd_new)
+    command(rsub, "new", _cmd_new, acts=True, arguments=(
+        (("case",), {"help": "case file (TOML)"}),
+        add_reading_options,
+        (("--process-version",), {"default": None, "help": "version of the filed scheduled process"}),
+        (("--entry-key",), {"metavar": "KEY", "default": None,
+                            "help": "a key of this entry (e.g. terminal and sequence number): repeating the command "
+                                    "with the same key after a failure returns the record already made, never a "
+                                    "second one"}),
+        add_rules_option,
+    ), help="enter a deviation from a case file and evaluate it (operator)")
+    command(rsub, "list", _cmd_list, acts=False, arguments=(
+        (("--state",), {"help": "entered, evaluated, held, released or decided"}),
+        (("--lot",), {}),
+        (("--retort",), {}),
+        _add_period,
+    ), help="list records (state, guidance, decision, hold)")
+    command(rsub, "show", _cmd_show, acts=False, arguments=(
+        ID, (("--arrays",), {"action": "store_true", "help": "recompute the cold-spot arrays from the snapshot and "
+                                                            "check them against the stored digest"}),
+    ), help="show a record and its events")
+    command(rsub, "log", _cmd_log, acts=False, arguments=(
+        _add_period,
+        (("--format", "-f"), {"choices": ("csv", "html", "pdf", "md"), "default": None,
+                              "help": "output format (default: from the -o suffix, else csv)"}),
+        (("-o", "--output"), {"default": "-", "metavar": "FILE",
+                              "help": "file to write (default '-': standard output; a PDF needs a file)"}),
+    ), help="the deviation log of a period (21 CFR 113.89): CSV, HTML, PDF or Markdown",
+        description="Every deviation entered in the period with its lot, retort, process, what happened, the "
+                    "guidance, the hold and the process authority's disposition (who, when, decision, reason); "
+                    "open items first.")
+    command(rsub, "amend", _cmd_amend, acts=True, arguments=(
+        ID, (("case",), {"help": "case file (TOML)"}), REASON, add_reading_options, add_rules_option,
+    ), help="amend a record with a new case snapshot, before a hold decision (operator)")
+    command(rsub, "hold", _cmd_hold, acts=True, arguments=(ID, REASON),
+            help="place the lot on hold (supervisor)")
+    command(rsub, "release", _cmd_release, acts=True, arguments=(
+        ID, REASON,
+        (("--decision-seq",), {"type": int, "default": None, "metavar": "N",
+                               "help": "the disposition event cited (default: the disposition in force)"}),
+    ), help="lift the hold, citing the process authority's disposition (supervisor)",
+        description="A held lot is released only by the process authority's disposition (release after "
+                    "evaluation lifts the hold itself), or by a supervisor citing the disposition the record "
+                    "holds, e.g. once a reprocess is done.")
+    command(rsub, "decide", _cmd_decide, acts=True, arguments=(
+        ID,
+        (("--decision",), {"required": True, "metavar": "DECISION",
+                           "help": "release-after-evaluation (or release), reprocess, destroy, or other with "
+                                   "--decision-text"}),
+        (("--decision-text",), {"default": None, "metavar": "TEXT", "help": "the decision in words, for 'other'"}),
+        REASON,
+        (("--result",), {"default": None, "help": "reprocess or incubation result"}),
+        (("--supersedes",), {"type": int, "default": None, "metavar": "N",
+                             "help": "correct the disposition in force (its event number), keeping both on record"}),
+        (("--yes",), {"action": "store_true", "help": "confirm the summary without the prompt"}),
+    ), help="record the disposition (process authority)",
+        description="The decision is one of the fixed list; a summary is shown and must be confirmed (at the "
+                    "prompt, or with --yes). A disposition in force is corrected only by a superseding one "
+                    "(--supersedes N, with a reason).")
+    command(rsub, "note", _cmd_note, acts=True, arguments=(ID, (("--text",), {"required": True})),
+            help="add a note")
+    command(rsub, "evaluate", _cmd_evaluate, acts=True, arguments=(ID, add_reading_options, add_rules_option),
+            help="re-evaluate with the current engine and rules (appends 'evaluated')")
 
-    p = rsub.add_parser("list", help="list records (state, guidance, decision, hold)")
-    p.add_argument("--state", help="entered, evaluated, held, released or decided")
-    p.add_argument("--lot")
-    p.add_argument("--retort")
-    _add_period(p)
-    add_common_options(p, acts=False)
-    p.set_defaults(handler=_cmd_list)
-
-    p = rsub.add_parser("show", help="show a record and its events")
-    p.add_argument("id")
-    p.add_argument("--arrays", action="store_true",
-                   help="recompute the cold-spot arrays from the snapshot and check them against the stored digest")
-    add_common_options(p, acts=False)
-    p.set_defaults(handler=_cmd_show)
-
-    p = rsub.add_parser("log", help="the deviation log of a period (21 CFR 113.89): CSV, HTML, PDF or Markdown",
-                        description="Every deviation entered in the period with its lot, retort, process, what "
-                                    "happened, the guidance, the hold and the process authority's disposition "
-                                    "(who, when, decision, reason); open items first.")
-    _add_period(p)
-    p.add_argument("--format", "-f", choices=("csv", "html", "pdf", "md"), default=None,
-                   help="output format (default: from the -o suffix, else csv)")
-    p.add_argument("-o", "--output", default="-", metavar="FILE",
-                   help="file to write (default '-': standard output; a PDF needs a file)")
-    add_common_options(p, acts=False)
-    p.set_defaults(handler=_cmd_log)
-
-    p = rsub.add_parser("amend", help="amend a record with a new case snapshot, before a hold decision (operator)")
-    p.add_argument("id")
-    p.add_argument("case", help="case file (TOML)")
-    p.add_argument("--reason", required=True)
-    add_reading_options(p)
-    add_rules_option(p)
-    add_common_options(p, acts=True)
-    p.set_defaults(handler=_cmd_amend)
-
-    p = rsub.add_parser("hold", help="place the lot on hold (supervisor)")
-    p.add_argument("id")
-    p.add_argument("--reason", required=True)
-    add_common_options(p, acts=True)
-    p.set_defaults(handler=_cmd_hold)
-
-    p = rsub.add_parser("release", help="lift the hold, citing the process authority's disposition (supervisor)",
-                        description="A held lot is released only by the process authority's disposition "
-                                    "(release after evaluation lifts the hold itself), or by a supervisor citing "
-                                    "the disposition the record holds, e.g. once a reprocess is done.")
-    p.add_argument("id")
-    p.add_argument("--reason", required=True)
-    p.add_argument("--decision-seq", type=int, default=None, metavar="N",
-                   help="the disposition event cited (default: the disposition in force)")
-    add_common_options(p, acts=True)
-    p.set_defaults(handler=_cmd_release)
-
-    p = rsub.add_parser("decide", help="record the disposition (process authority)",
-                        description="The decision is one of the fixed list; a summary is shown and must be "
-                                    "confirmed (at the prompt, or with --yes). A disposition in force is "
-                                    "corrected only by a superseding one (--supersedes N, with a reason).")
-    p.add_argument("id")
-    p.add_argument("--decision", required=True, metavar="DECISION",
-                   help="release-after-evaluation (or release), reprocess, destroy, or other with --decision-text")
-    p.add_argument("--decision-text", default=None, metavar="TEXT", help="the decision in words, for 'other'")
-    p.add_argument("--reason", required=True)
-    p.add_argument("--result", default=None, help="reprocess or incubation result")
-    p.add_argument("--supersedes", type=int, default=None, metavar="N",
-                   help="correct the disposition in force (its event number), keeping both on record")
-    p.add_argument("--yes", action="store_true", help="confirm the summary without the prompt")
-    add_common_options(p, acts=True)
-    p.set_defaults(handler=_cmd_decide)
-
-    p = rsub.add_parser("note", help="add a note")
-    p.add_argument("id")
-    p.add_argument("--text", required=True)
-    add_common_options(p, acts=True)
-    p.set_defaults(handler=_cmd_note)
-
-    p = rsub.add_parser("evaluate", help="re-evaluate with the current engine and rules (appends 'evaluated')")
-    p.add_argument("id")
-    add_reading_options(p)
-    add_rules_option(p)
-    add_common_options(p, acts=True)
-    p.set_defaults(handler=_cmd_evaluate)
-
-    p = subparsers.add_parser("replay", help="recompute records with the current engine and rules")
-    p.add_argument("id", nargs="?", help="record id")
-    p.add_argument("--all", action="store_true", help="every record (a process pool, a progress bar)")
-    p.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores with --all)")
-    add_rules_option(p)
-    add_common_options(p, acts=False)
-    p.set_defaults(handler=_cmd_replay)
-
-    p = subparsers.add_parser("verify", help="check every hash chain, the library and the anchors of the store",
-                              description="Check every event's keyed hash and both chains, the filed-process "
-                                          "library, the summary table (rebuilt if it differs) and the store head "
-                                          "against the anchor file and --expect-head. Exit 0 only if all hold.")
-    p.add_argument("--anchors", metavar="FILE", default=None,
-                   help="an anchor file of noted heads (default: the store's own anchor file, when it exists)")
-    p.add_argument("--expect-head", metavar="HASH", default=None,
-                   help="a store head noted earlier (64 hex digits, or SEQ:HASH): the chain must still hold it")
-    p.add_argument("--no-rebuild", action="store_true", help="report a differing summary table, do not rebuild it")
-    add_common_options(p, acts=False)
-    p.set_defaults(handler=_cmd_verify)
-
-    p = subparsers.add_parser("export", help="export records to a JSON bundle")
-    p.add_argument("ids", nargs="*", metavar="ID")
-    p.add_argument("--all", action="store_true")
-    p.add_argument("-o", "--output", required=True, metavar="FILE")
-    add_common_options(p, acts=False)
-    p.set_defaults(handler=_cmd_export)
-
-    p = subparsers.add_parser("import", help="import a JSON bundle (every chain and every event checked first)")
-    p.add_argument("file")
-    p.add_argument("--source-key", metavar="FILE", default=None,
-                   help="the source store's key file: check the signatures of its events")
-    add_common_options(p, acts=True)
-    p.set_defaults(handler=_cmd_import)
-
+    command(subparsers, "replay", _cmd_replay, acts=False, arguments=(
+        (("id",), {"nargs": "?", "help": "record id"}),
+        (("--all",), {"action": "store_true", "help": "every record (a process pool, a progress bar)"}),
+        (("--jobs",), {"type": int, "default": None, "help": "worker processes (default: all cores with --all)"}),
+        add_rules_option,
+    ), help="recompute records with the current engine and rules")
+    command(subparsers, "verify", _cmd_verify, acts=False, arguments=(
+        (("--anchors",), {"metavar": "FILE", "default": None,
+                          "help": "an anchor file of noted heads (default: the store's own anchor file, when it "
+                                  "exists)"}),
+        (("--expect-head",), {"metavar": "HASH", "default": None,
+                              "help": "a store head noted earlier (64 hex digits, or SEQ:HASH): the chain must "
+                                      "still hold it"}),
+        (("--no-rebuild",), {"action": "store_true",
+                             "help": "report a differing summary table, do not rebuild it"}),
+    ), help="check every hash chain, the library and the anchors of the store",
+        description="Check every event's keyed hash and both chains, the filed-process library, the summary "
+                    "table (rebuilt if it differs) and the store head against the anchor file and "
+                    "--expect-head. Exit 0 only if all hold.")
+    command(subparsers, "export", _cmd_export, acts=False, arguments=(
+        (("ids",), {"nargs": "*", "metavar": "ID"}),
+        (("--all",), {"action": "store_true"}),
+        (("-o", "--output"), {"required": True, "metavar": "FILE"}),
+    ), help="export records to a JSON bundle")
+    command(subparsers, "import", _cmd_import, acts=True, arguments=(
+        (("file",), {}),
+        (("--source-key",), {"metavar": "FILE", "default": None,
+                             "help": "the source store's key file: check the signatures of its events"}),
+    ), help="import a JSON bundle (every chain and every event checked first)")
 
 __all__ = ["register"]

@@ -47,32 +47,15 @@ def _header(header: list[str], line: int, source: str):
     listed = ", ".join(repr(name) for name in names)
     time_cols = [i for i, n in enumerate(names) if n.lower() in ("time_min", "time")]
     retort_cols = [i for i, n in enumerate(names) if n.lower() in ("retort_c", "retort_f")]
-    if len(time_cols) > 1:
-        raise RecordError(
-            f"line {line}: {len(time_cols)} time columns in the header ("
-            + ", ".join(names[i] for i in time_cols)
-            + "); expected one: time_min (minutes) or time (ISO-8601 timestamps)",
-            source=source,
-        )
-    if not time_cols:
-        raise RecordError(
-            f"line {line}: no time column in the header (found {listed}); expected time_min "
-            f"(minutes) or time (ISO-8601 timestamps) in a {_WHAT}",
-            source=source,
-        )
-    if len(retort_cols) > 1:
-        raise RecordError(
-            f"line {line}: {len(retort_cols)} retort columns in the header ("
-            + ", ".join(names[i] for i in retort_cols)
-            + "); expected one: retort_C or retort_F",
-            source=source,
-        )
-    if not retort_cols:
-        raise RecordError(
-            f"line {line}: no retort column in the header (found {listed}); expected retort_C "
-            f"or retort_F in a {_WHAT}",
-            source=source,
-        )
+    for cols, what, expected in ((time_cols, "time", "time_min (minutes) or time (ISO-8601 timestamps)"),
+                                 (retort_cols, "retort", "retort_C or retort_F")):
+        if len(cols) > 1:
+            raise RecordError(f"line {line}: {len(cols)} {what} columns in the header ("
+                              + ", ".join(names[i] for i in cols) + f"); expected one: {expected}",
+                              source=source)
+        if not cols:
+            raise RecordError(f"line {line}: no {what} column in the header (found {listed}); expected "
+                              f"{expected} in a {_WHAT}", source=source)
     time_index, retort_index = time_cols[0], retort_cols[0]
     time_name = names[time_index].lower()
     retort_unit = names[retort_index][-1].upper()

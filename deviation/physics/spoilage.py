@@ -129,25 +129,10 @@ def log10_nonsterile_probability(F_min, D_min, spores_per_container):
     Method: as :func:`nonsterile_probability`, ``p = 1 - exp(-N)``, taken in log space:
     ``log10 p = log10(-expm1(-N))``, which for small ``N`` is ``log10 N = log10 N0 - F/D``
     to within ``N/2`` relative, so a probability below 1e-308 keeps its exponent instead of
-    becoming 0 (Stumbo 1973 [1]).
+    becoming 0 (Stumbo 1973, as cited there).
 
-    Parameters
-    ----------
-    F_min : float or array_like
-        Delivered sterilizing value [min].
-    D_min : float or array_like
-        Decimal reduction time at the reference temperature [min], > 0.
-    spores_per_container : float or array_like
-        Initial load N0 [organisms per container], >= 0 (0 gives ``-inf``).
-
-    Returns
-    -------
-    float or numpy.ndarray
-        log10 of the probability [-], <= 0.
-
-    References
-    ----------
-    .. [1] C. R. Stumbo, *Thermobacteriology in Food Processing*, 2nd ed., 1973.
+    Parameters are those of :func:`nonsterile_probability` (a load of 0 gives ``-inf``); the
+    result is log10 of the probability [-], <= 0 (float or numpy.ndarray).
     """
     log10_n = np.asarray(_log10_survivors(F_min, D_min, spores_per_container), dtype=float)
     # Where N is representable use the exact form; below 1e-300, p = N (1 - N/2 + ...) exactly
@@ -219,19 +204,9 @@ def log_reductions(F_min, D_min):
     """Decimal (log10) reductions delivered by a process: ``F / D``.
 
     Method: first-order inactivation; the 12D principle requires ``F / D_bot >= 12`` for
-    *C. botulinum* (Stumbo 1973 [1]).
-
-    Parameters
-    ----------
-    F_min : float or array_like
-        Delivered sterilizing value [min].
-    D_min : float or array_like
-        Decimal reduction time at the reference temperature [min], > 0.
-
-    Returns
-    -------
-    float or numpy.ndarray
-        Log reductions [-].
+    *C. botulinum* (Stumbo 1973 [1]). ``F_min`` and ``D_min`` [min] as for
+    :func:`nonsterile_probability` (``D_min`` at the same reference temperature as F); returns
+    the log reductions [-] (float or numpy.ndarray).
 
     References
     ----------

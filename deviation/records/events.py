@@ -13,6 +13,13 @@ from deviation.records.chains import new_event_id
 from deviation.records.schema import EVENT_ID_MAX
 
 
+class AsDict:
+    """``to_dict()``: a dataclass's fields as a dict (nested dataclasses too), for JSON."""
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
 @dataclass(frozen=True)
 class Event:
     """One stored event."""
@@ -147,7 +154,7 @@ class RecordView:
 
 
 @dataclass(frozen=True)
-class VerifyResult:
+class VerifyResult(AsDict):
     """What ``verify`` found: ``first_broken`` is ``{record_id, seq, kind, global_seq, reason}``.
 
     ``signatures``: whether the keyed hashes were checked (the key was found) and from which
@@ -169,19 +176,13 @@ class VerifyResult:
     library: dict | None = None
     summaries: dict | None = None
 
-    def to_dict(self) -> dict:
-        return asdict(self)
-
 
 @dataclass(frozen=True)
-class ImportResult:
+class ImportResult(AsDict):
     records_added: int
     events_added: int
     records_unchanged: int
     record_ids: list[str] = field(default_factory=list)
-
-    def to_dict(self) -> dict:
-        return asdict(self)
 
 
 _SMALL_KINDS = ("hold-placed", "hold-released", "disposition", "note", "process-filed", "process-retired")

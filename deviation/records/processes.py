@@ -39,6 +39,7 @@ from deviation import __version__
 from deviation.errors import CaseError, PermissionDenied, StoreError
 from deviation.records import ledger
 from deviation.records.chains import canonical_json, event_hash, utc_now
+from deviation.records.events import AsDict
 from deviation.records.schema import LIBRARY_ID, events_t, records_t
 
 FILE_ACTION = "file or retire a scheduled process"
@@ -148,7 +149,7 @@ def ensure_library(store) -> None:
 
 
 @dataclass(frozen=True)
-class Retirement:
+class Retirement(AsDict):
     """One retirement of a process id (every version up to ``up_to_version``)."""
 
     up_to_version: int
@@ -156,9 +157,6 @@ class Retirement:
     actor: str
     role: str
     reason: str
-
-    def to_dict(self) -> dict:
-        return asdict(self)
 
 
 @dataclass(frozen=True)
@@ -203,16 +201,13 @@ class FiledProcess:
 
 
 @dataclass(frozen=True)
-class ResolvedRef:
+class ResolvedRef(AsDict):
     """What a ``process_ref`` resolved to: keep it on the record (``process_version``)."""
 
     ref: str
     process_id: str
     process_version: int
     sha256: str
-
-    def to_dict(self) -> dict:
-        return asdict(self)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -285,7 +280,7 @@ def _check_id(process_id: Any) -> str:
 
 
 @dataclass(frozen=True)
-class Filed:
+class Filed(AsDict):
     """What :func:`add_process` did."""
 
     process_id: str
@@ -296,9 +291,6 @@ class Filed:
 
     def __iter__(self):  # (id, version, scheduled_F_min, warning)
         return iter((self.process_id, self.version, self.scheduled_F_min, self.warning))
-
-    def to_dict(self) -> dict:
-        return asdict(self)
 
 
 def add_process(store, process: dict | str | os.PathLike, *, actor: str, role: str,

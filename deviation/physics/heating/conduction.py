@@ -105,11 +105,16 @@ def _n_terms(n_terms) -> int:
     return n
 
 
-def _time_s(time_min) -> np.ndarray:
+def finite_times(time_min) -> np.ndarray:
+    """``time_min`` as a float array [min]; :class:`ModelInputError` on a non-finite value."""
     t = np.asarray(time_min, dtype=float)
     if not np.all(np.isfinite(t)):
         raise ModelInputError("time_min contains a non-finite value; expected finite times [min]")
-    return t * SECONDS_PER_MINUTE
+    return t
+
+
+def _time_s(time_min) -> np.ndarray:
+    return finite_times(time_min) * SECONDS_PER_MINUTE
 
 
 def _sorted_view(x: np.ndarray):

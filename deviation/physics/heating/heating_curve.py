@@ -109,7 +109,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from deviation.physics.heating.conduction import ModelInputError
+from deviation.physics.heating.conduction import ModelInputError, finite_times
 from deviation.physics.heating.superposition import superpose
 
 __all__ = [
@@ -145,13 +145,6 @@ def _lag_factor(name: str, value) -> float:
     if not math.isfinite(j) or j <= 0.0:
         raise ModelInputError(f"{name} = {value!r}; expected a finite number > 0")
     return j
-
-
-def _times(time_min) -> np.ndarray:
-    t = np.asarray(time_min, dtype=float)
-    if not np.all(np.isfinite(t)):
-        raise ModelInputError("time_min contains a non-finite value; expected finite times [min]")
-    return t
 
 
 def rising_unaccomplished(time_min, fh_min, jh) -> np.ndarray:
@@ -195,7 +188,7 @@ def rising_unaccomplished(time_min, fh_min, jh) -> np.ndarray:
     """
     fh = _rate_index("fh_min", fh_min)
     j = _lag_factor("jh", jh)
-    t = _times(time_min)
+    t = finite_times(time_min)
     # log10 form: no overflow of 10^(-t/fh) for large negative t (those are set to 1 anyway)
     log10_s = math.log10(max(j, 1.0)) - np.maximum(t, 0.0) / fh
     return np.power(10.0, np.minimum(log10_s, 0.0))
@@ -205,31 +198,8 @@ def step_unaccomplished(time_min, fh_min, jh) -> np.ndarray:
     """Unaccomplished fraction after a retort temperature step, heating-curve model.
 
     The name kept for existing callers: the same response as :func:`rising_unaccomplished`,
-    Ball's lag form ``min(1, max(jh, 1) · 10^(-t/fh))`` (Ball 1923 [1]), continuous at
-    ``t = 0``.
-
-    Parameters
-    ----------
-    time_min : array_like
-        Time since the retort temperature step [min].
-    fh_min : float
-        Heating (or cooling, fc) rate index [min], > 0.
-    jh : float
-        Heating (or cooling, jc) lag factor [-], > 0.
-
-    Returns
-    -------
-    numpy.ndarray
-        ``S = (T_R - T) / (T_R - T_0)`` [-], in [0, 1], shape of ``time_min``.
-
-    Raises
-    ------
-    ModelInputError
-        ``fh_min`` or ``jh`` not finite and > 0, or a non-finite time.
-
-    References
-    ----------
-    .. [1] C. O. Ball, *Bull. Natl. Res. Counc.* 7, part 1, no. 37 (1923).
+    Ball's lag form ``min(1, max(jh, 1) · 10^(-t/fh))`` (Ball 1923), continuous at ``t = 0``;
+    parameters (``fh_min``, ``jh``: or a cooling fc, jc), result and errors as there.
     """
     return rising_unaccomplished(time_min, fh_min, jh)
 
@@ -279,7 +249,7 @@ def falling_unaccomplished(time_min, fc_min, jc) -> np.ndarray:
     """
     f = _rate_index("fc_min", fc_min)
     j = _lag_factor("jc", jc)
-    t = _times(time_min)
+    t = finite_times(time_min)
     after = np.maximum(t, 0.0)
     tau1 = f / LN10
     if j <= 1.0:
@@ -322,12 +292,8 @@ def rising_unaccomplished_broken(time_min, fh_min, jh, fh2_min, break_min) -> np
 
     Parameters
     ----------
-    time_min : array_like
-        Time since the retort temperature step [min].
-    fh_min : float
-        Heating rate index of the first line, fh [min], > 0.
-    jh : float
-        Heating lag factor jh [-], > 0.
+    time_min, fh_min, jh
+        As for :func:`rising_unaccomplished` (``fh_min``: the first line's).
     fh2_min : float
         Heating rate index of the second line, fh2 [min], > 0.
     break_min : float
@@ -336,14 +302,12 @@ def rising_unaccomplished_broken(time_min, fh_min, jh, fh2_min, break_min) -> np
     Returns
     -------
     numpy.ndarray
-        ``S = (T_R - T) / (T_R - T_0)`` [-], in [0, 1], non-increasing in time, shape of
-        ``time_min``.
+        As :func:`rising_unaccomplished`.
 
     Raises
     ------
     ModelInputError
-        A rate index or lag factor not finite and > 0, a break time not finite and >= 0, or a
-        non-finite time.
+        As :func:`rising_unaccomplished`, and a break time not finite and >= 0.
 
     References
     ----------
@@ -354,7 +318,7 @@ def rising_unaccomplished_broken(time_min, fh_min, jh, fh2_min, break_min) -> np
     j = _lag_factor("jh", jh)
     fh2 = max(fh, _rate_index("fh2_min", fh2_min))
     x_bh = _break_time("break_min", break_min)
-    t = np.maximum(_times(time_min), 0.0)
+    t = np.maximum(finite_times(time_min), 0.0)
     log10_s = math.log10(max(j, 1.0)) - np.minimum(t, x_bh) / fh - np.maximum(t - x_bh, 0.0) / fh2
     return np.power(10.0, np.minimum(log10_s, 0.0))
 

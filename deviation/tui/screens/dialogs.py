@@ -23,7 +23,7 @@ from textual.widgets import Button, Label, Static
 from deviation.errors import DeviationError
 from deviation.records.roles import DECISION_WORDS, DECISIONS, ROLES, decision_code
 from deviation.records.text import one_line
-from deviation.tui.widgets.form import Field, FileChoice, FormDialog
+from deviation.tui.widgets.form import Field, FileChoice, FormDialog, PathResult
 
 
 class _TextDialog(FormDialog):
@@ -168,14 +168,10 @@ class IdentityDialog(_TextDialog):
         return Identity(v["actor"], normalize_role(v["role"], actor=v["actor"]))
 
 
-class ExportReportDialog(_TextDialog):
+class ExportReportDialog(PathResult, _TextDialog):
     TITLE_TEXT = "Export the evaluation report (HTML or Markdown by suffix)"
     FIELDS = (Field("path", "File", "report.html"),)
-
-    def make_result(self, v):
-        if not v["path"]:
-            raise DeviationError("give a file name ending in .html or .md", source="file")
-        return FileChoice(v["path"])
+    MISSING = "give a file name ending in .html or .md"
 
 
 __all__ = ["HoldDialog", "ReleaseDialog", "DecideDialog", "ConfirmDialog", "NoteDialog", "IdentityDialog",

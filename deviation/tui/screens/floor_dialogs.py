@@ -2,20 +2,14 @@
 
 from __future__ import annotations
 
-
-from deviation.errors import DeviationError
 from deviation.tui.follow import FollowStart, open_followed_log
-from deviation.tui.widgets.form import Field, FileChoice, FormDialog
+from deviation.tui.widgets.form import Field, FileChoice, FormDialog, PathResult
 
 
-class ImportLogDialog(FormDialog[FileChoice]):
+class ImportLogDialog(PathResult, FormDialog[FileChoice]):
     TITLE_TEXT = "Import a retort log (CSV: time_min, temperature_C)"
     FIELDS = (Field("path", "File", "path/to/retort-log.csv"),)
-
-    def make_result(self, v):
-        if not v["path"]:
-            raise DeviationError("give the path of the retort log CSV", source="file")
-        return FileChoice(v["path"])
+    MISSING = "give the path of the retort log CSV"
 
 
 class FollowLogDialog(FormDialog[FollowStart]):

@@ -99,3 +99,15 @@ class FormDialog(ModalScreen[T | None], Generic[T]):
             self.action_submit()
         else:
             self.action_cancel()
+
+
+class PathResult:
+    """For a dialog asking for one file (its field ``path``): the path chosen, or
+    ``MISSING`` as the error when none is given. Put it before the dialog's base class."""
+
+    MISSING = "give a file name"
+
+    def make_result(self, values: dict[str, str]) -> FileChoice:
+        if not values["path"]:
+            raise DeviationError(self.MISSING, source="file")
+        return FileChoice(values["path"])
