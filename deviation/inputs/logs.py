@@ -24,6 +24,7 @@ import gc
 import hashlib
 import math
 import re
+import warnings
 from dataclasses import dataclass
 from datetime import datetime
 from pathlib import Path
@@ -334,8 +335,6 @@ def _fast_numbers(cells: list[str]) -> list[float] | None:
 def _fast_timestamps(cells: list[str]) -> np.ndarray | None:
     """Minutes from the first timestamp when every cell is ``YYYY-MM-DDTHH:MM:SS`` (naive), the
     same figures ``datetime.fromisoformat`` gives row by row; None for anything else."""
-    import warnings
-
     try:
         with warnings.catch_warnings():  # numpy warns on an offset; such a column goes row by row
             warnings.simplefilter("ignore")

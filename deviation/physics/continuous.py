@@ -111,6 +111,7 @@ import numpy as np
 from scipy import fft as _fft
 
 from deviation.physics.heating.conduction import ModelInputError
+from deviation.physics.heating.superposition import uniform_grid
 from deviation.physics.lethality import F0_REFERENCE_TEMPERATURE_C, F0_Z_C
 
 __all__ = [
@@ -127,8 +128,6 @@ UNAFFECTED = "unaffected"
 
 Unaccomplished = Callable[[np.ndarray], np.ndarray]
 
-# Relative tolerance on the record's grid spacing (logs carry rounded times), as superpose.
-_GRID_RTOL = 1e-6
 # Times and residences are snapped to the grid within this fraction of a step (a residence of
 # exactly 30 min on a 1-s grid must give 1800 steps, not 1799 by rounding).
 _SNAP = 1e-9
@@ -322,21 +321,7 @@ def _check_grid(time_min) -> tuple[np.ndarray, float]:
     t = np.asarray(time_min, dtype=float)
     if t.ndim != 1 or t.size < 2:
         raise ModelInputError(f"time_min has shape {t.shape}; expected a 1-D grid of >= 2 times")
-    if not np.all(np.isfinite(t)):
-        raise ModelInputError("time_min contains a non-finite value; expected finite times [min]")
-    dt = (t[-1] - t[0]) / (t.size - 1)
-    if not dt > 0.0:
-        raise ModelInputError("time_min does not increase; expected a uniform increasing grid")
-    if abs(t[0]) > _GRID_RTOL * dt:
-        raise ModelInputError(f"time_min starts at {t[0]!r}; expected a grid starting at 0")
-    off = np.abs(t - dt * np.arange(t.size))
-    worst = int(np.argmax(off))
-    if off[worst] > _GRID_RTOL * dt:
-        raise ModelInputError(
-            f"time_min is not a uniform grid: sample {worst} is at {t[worst]!r} min, expected "
-            f"{worst * dt!r} min (step {dt!r} min); resample the record first"
-        )
-    return t, dt
+    return uniform_grid(t)
 
 
 def _sparse_table(values: np.ndarray, pad_value: float) -> np.ndarray:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from datetime import datetime, timedelta
+
 import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -189,8 +191,8 @@ def test_temperature_low_event_never_raises_a_reading(profile, data):
 # -- the columns read at once give what the rows read one by one give ----------------------------
 
 stamp_text = st.one_of(
-    st.datetimes(min_value=__import__("datetime").datetime(1, 1, 1),
-                 max_value=__import__("datetime").datetime(9999, 12, 31, 23, 59, 59)).map(
+    st.datetimes(min_value=datetime(1, 1, 1),
+                 max_value=datetime(9999, 12, 31, 23, 59, 59)).map(
         lambda d: d.replace(microsecond=0).isoformat()),
     st.builds(lambda y, mo, d, h, mi, s: f"{y:04d}-{mo:02d}-{d:02d}T{h:02d}:{mi:02d}:{s:02d}",
               st.integers(0, 10000), st.integers(0, 13), st.integers(0, 32), st.integers(0, 25),
@@ -219,16 +221,14 @@ def _both_ways(text, monkeypatch):
 
 
 @settings(max_examples=400, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(start=st.datetimes(min_value=__import__("datetime").datetime(1, 1, 2),
-                          max_value=__import__("datetime").datetime(9999, 12, 30)),
+@given(start=st.datetimes(min_value=datetime(1, 1, 2),
+                          max_value=datetime(9999, 12, 30)),
        steps=st.lists(st.integers(-5, 400), min_size=1, max_size=30),
        odd=st.lists(st.tuples(st.integers(0, 30), stamp_text), max_size=3),
        temperature=st.floats(20.0, 130.0))
 def test_timestamps_read_at_once_as_row_by_row(start, steps, odd, temperature, monkeypatch):
     # The ISO column read at once by numpy (datetime64) against datetime.fromisoformat row by
     # row: the same minutes, or the same message, for well-formed days with a few odd cells.
-    from datetime import timedelta
-
     start = start.replace(microsecond=0)
     stamps, now = [], start
     for s in steps:
@@ -245,8 +245,6 @@ def test_timestamps_read_at_once_as_row_by_row(start, steps, odd, temperature, m
 def test_a_recorder_day_is_read_at_once():
     # The form recorders write (and the review's demo day): the fast reading is taken, and its
     # minutes are those of the row-by-row reading.
-    from datetime import datetime, timedelta
-
     import deviation.inputs.logs as logs
 
     start = datetime(2026, 12, 1, 5, 30)

@@ -100,7 +100,9 @@ _MAX_SUBDIVISION = 8
 Unaccomplished = Callable[[np.ndarray], np.ndarray]
 
 
-def _check_grid(time_min) -> tuple[np.ndarray, float]:
+def uniform_grid(time_min) -> tuple[np.ndarray, float]:
+    """``(times, step)`` [min] of a uniform grid starting at 0; :class:`ModelInputError` naming
+    the first sample off it (or a non-finite, empty or non-increasing grid)."""
     t = np.asarray(time_min, dtype=float)
     if t.ndim != 1 or t.size == 0:
         raise ModelInputError(f"time_min has shape {t.shape}; expected a non-empty 1-D grid [min]")
@@ -340,7 +342,7 @@ def superpose(
     .. [2] Ferson et al., *Constructing Probability Boxes and Dempster-Shafer Structures*,
        SAND2002-4015, 2003.
     """
-    t, dt = _check_grid(time_min)
+    t, dt = uniform_grid(time_min)
     retort = np.asarray(retort_C, dtype=float)
     if retort.shape != t.shape:
         raise ModelInputError(
