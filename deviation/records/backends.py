@@ -287,7 +287,19 @@ class Database:
             query = sa.engine.make_url(url).query
             connect_args = {k: v for k, v in connect_args.items() if k not in query}
         # pre_ping: a pooled connection that died with a restarted server is replaced, not used.
-        return sa.create_engine(url, pool_pre_ping=True, connect_args=connect_args)
+        engine = sa.create_engine(url, pool_pre_ping=True, connect_args=connect_args)
+        if engine.dialect.name == "postgresql":
+
+            @sa_event.listens_for(engine, "connect")
+            def _on_pg_connect(dbapi_conn, _record):  # noqa: ANN001
+                # A bounded wait for any lock, like SQLite's busy timeout: set once per
+                # connection, not in every write transaction (one round trip fewer each).
+                cur = dbapi_conn.cursor()
+                cur.execute(f"SET lock_timeout = '{int(_BUSY_TIMEOUT_S * 1000)}ms'")
+                cur.close()
+                dbapi_conn.commit()
+
+        return engine
 
     def close(self) -> None:
         self.engine.dispose()
@@ -366,13 +378,11 @@ class Database:
         with self._guard(), self.engine.connect() as conn:
             conn.execution_options(deviation_write=True)
             with conn.begin():
-                if self.dialect == "postgresql":
-                    # A bounded wait for any lock, like SQLite's busy timeout.
-                    conn.exec_driver_sql(f"SET LOCAL lock_timeout = '{int(_BUSY_TIMEOUT_S * 1000)}ms'")
-                    if lock_heads:
-                        # Every writer takes the same lock: the chain heads read after it are
-                        # current until COMMIT. Transaction-scoped, so a lost client frees it.
-                        conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({_PG_WRITE_LOCK})")
+                if self.dialect == "postgresql" and lock_heads:
+                    # Every writer takes the same lock: the chain heads read after it are
+                    # current until COMMIT. Transaction-scoped, so a lost client frees it. (The
+                    # connection's lock_timeout bounds the wait.)
+                    conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({_PG_WRITE_LOCK})")
                 yield conn
 
     def _retrying(self, fn: Callable[[sa.Connection], Any], *, idempotent: bool = False) -> Any:

@@ -9,6 +9,7 @@ or removed (``record_summaries`` is derived and is rewritten here).
 from __future__ import annotations
 
 import json
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 import sqlalchemy as sa
@@ -25,6 +26,10 @@ from deviation.records.chains import (
     sha256_text,
 )
 from deviation.records.schema import LIBRARY_ID, events_t, summaries_t
+
+
+#: ``insert_event(summary=...)`` / ``fold_into_summary(found=...)`` not given: read it.
+UNREAD = object()
 
 
 @dataclass(frozen=True)
@@ -71,6 +76,30 @@ def global_head(conn: sa.Connection) -> tuple[int, str]:
     return (row.global_seq, row.global_hash) if row else (0, GENESIS_HASH)
 
 
+def append_context(conn: sa.Connection, record_id: str) -> tuple[list, tuple[int, str], dict | None]:
+    """What an append to ``record_id`` reads under the write lock, in one query (one round trip
+    while every other writer waits): the record's events in order (``seq``, ``kind``, ``hash``
+    and, for dispositions only, the payload as ``p``), the store head ``(global_seq,
+    global_hash)`` and the record's summary row (None when it has none). No events: ``([],
+    store head, None)``."""
+    head = (sa.select(events_t.c.global_seq.label("g_seq"), events_t.c.global_hash.label("g_hash"))
+            .order_by(events_t.c.global_seq.desc()).limit(1).subquery())
+    payload = sa.case((events_t.c.kind == "disposition", events_t.c.payload), else_=sa.null())
+    summary_cols = [c.label(f"s_{c.name}") for c in summaries_t.c]
+    rows = conn.execute(
+        sa.select(events_t.c.seq, events_t.c.kind, events_t.c.hash, payload.label("p"), head.c.g_seq,
+                  head.c.g_hash, *summary_cols)
+        .select_from(events_t.join(head, sa.true())
+                     .outerjoin(summaries_t, summaries_t.c.id == events_t.c.record_id))
+        .where(events_t.c.record_id == record_id).order_by(events_t.c.seq)).all()
+    if not rows:
+        return [], global_head(conn), None
+    first = rows[0]._mapping
+    found = ({c.name: first[f"s_{c.name}"] for c in summaries_t.c}
+             if first["s_id"] is not None else None)
+    return rows, (first["g_seq"], first["g_hash"]), found
+
+
 def content_sha256(record_id: str, seq: int, kind: str, utc: str, actor: str, role: str, payload_json: str,
                    prev_hash: str) -> str:
     """The unkeyed SHA-256 of an event (what the store-wide link of an imported event covers)."""
@@ -81,13 +110,16 @@ def insert_event(conn: sa.Connection, signer: Signer, *, record_id: str, kind: s
                  role: str, payload_json: str, payload: dict | None = None, origin: str | None = None,
                  given: tuple[int, str, str] | None = None, event_id: str | None = None,
                  header: dict | None = None, source: str | None = None,
-                 head: tuple[int, str] | None = None) -> dict:
+                 head: tuple[int, str] | None = None, store_head: tuple[int, str] | None = None,
+                 summary: dict | None | object = UNREAD) -> dict:
     """Insert one event at the heads of both chains and fold it into the record's summary.
 
     ``given``: (seq, prev_hash, hash) of an imported event, which keeps its own chain; its
     store-wide link then covers its content's SHA-256. ``payload``: the parsed payload if the
-    caller has it (else parsed here for the summary). ``head``: the record's (seq, hash) when the
-    caller read it in this transaction. Returns the row as inserted.
+    caller has it (else parsed here for the summary). ``head``, ``store_head`` and ``summary``:
+    the record's (seq, hash), the store's (global_seq, global_hash) and the record's summary row
+    (None: it has none) when the caller read them in this transaction under the write lock
+    (:func:`append_context`); each one not given is read here. Returns the row as inserted.
     """
     key = signer.require(source)
     if given is None:
@@ -98,7 +130,7 @@ def insert_event(conn: sa.Connection, signer: Signer, *, record_id: str, kind: s
     else:
         seq, prev, h = given
         content = content_sha256(record_id, seq, kind, utc, actor, role, payload_json, prev)
-    gseq, gprev = global_head(conn)
+    gseq, gprev = store_head if store_head is not None else global_head(conn)
     gseq += 1
     gh = global_hash(gseq, record_id, seq, h, origin, gprev, key, content)
     row = dict(global_seq=gseq, record_id=record_id, seq=seq, kind=kind, utc=utc, actor=actor,
@@ -107,7 +139,8 @@ def insert_event(conn: sa.Connection, signer: Signer, *, record_id: str, kind: s
     # Append-only: events are INSERTed, never changed or removed.
     conn.execute(events_t.insert().values(**row))
     if record_id != LIBRARY_ID:
-        fold_into_summary(conn, row, payload if payload is not None else json.loads(payload_json), header=header)
+        fold_into_summary(conn, row, payload if payload is not None else json.loads(payload_json), header=header,
+                          found=summary)
     return row
 
 
@@ -136,14 +169,17 @@ def write_summary(conn: sa.Connection, s: dict, *, exists: bool) -> None:
         conn.execute(summaries_t.insert().values(**values))
 
 
-def fold_into_summary(conn: sa.Connection, row: dict, payload: dict, *, header: dict | None = None) -> None:
+def fold_into_summary(conn: sa.Connection, row: dict, payload: dict, *, header: dict | None = None,
+                      found: Mapping | None | object = UNREAD) -> None:
     """Bring the record's summary row up to date with one more event (same transaction).
 
-    A row that is missing or out of step (it has not folded exactly the events before this one)
-    is folded again from all the record's events.
+    ``found``: the summary row as read in this transaction before the event was inserted (None:
+    there is none); read here when not given. A row that is missing or out of step (it has not
+    folded exactly the events before this one) is folded again from all the record's events.
     """
     rid = row["record_id"]
-    found = conn.execute(sa.select(summaries_t).where(summaries_t.c.id == rid)).mappings().first()
+    if found is UNREAD:
+        found = conn.execute(sa.select(summaries_t).where(summaries_t.c.id == rid)).mappings().first()
     current = summaries.from_row(found) if found is not None else None
     if row["seq"] == 1 and (header is not None or isinstance(payload.get("record"), dict)):
         s = summaries.fold(None, kind=row["kind"], seq=1, utc=row["utc"], actor=row["actor"], role=row["role"],
@@ -161,5 +197,6 @@ def fold_into_summary(conn: sa.Connection, row: dict, payload: dict, *, header: 
     write_summary(conn, s, exists=found is not None)
 
 
-__all__ = ["Signer", "seal", "seal_text", "record_head", "global_head", "content_sha256", "insert_event",
+__all__ = ["Signer", "UNREAD", "seal", "seal_text", "record_head", "global_head", "append_context",
+           "content_sha256", "insert_event",
            "fold_events", "fold_into_summary", "write_summary"]

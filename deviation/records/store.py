@@ -56,7 +56,7 @@ from deviation.errors import DeviationError, StoreError
 from deviation.records import bundles, keys, ledger, roles, summaries
 from deviation.records.arrays import compact_evaluation
 from deviation.records.backends import Database, check_columns, created_bound, url_for
-from deviation.records.chains import canonical_json, new_record_id, utc_now
+from deviation.records.chains import GENESIS_HASH, canonical_json, new_record_id, utc_now
 from deviation.records.events import (
     Event,
     ImportResult,
@@ -196,7 +196,7 @@ class Store(Database):
         eid = checked_event_id(event_id)
         self.signer.require(self.name)
         # Made once, outside the transaction: a retry writes the same record, not a new one.
-        created = {"id": new_record_id()}
+        created = {"id": new_record_id(), "tries": 0}
         # The snapshot (log contents and all) is serialised before the transaction; the payload
         # text is exactly canonical_json({"record": header, "snapshot": snapshot}).
         snapshot_json = canonical_json(snapshot)
@@ -210,18 +210,24 @@ class Store(Database):
                         raise StoreError(f"event id {eid} is already used by event {done['seq']} "
                                          f"({done['kind']}) of record {done['record_id']}", source=self.name)
                     return done["record_id"]
+            if created["tries"]:
+                # Not committed before (no event with this key): a retry, e.g. after the
+                # unlikely collision of 60 random bits with a stored id, draws a new id.
+                created["id"] = new_record_id()
             check_first = True
+            created["tries"] += 1
             rid = created["id"]
-            if conn.execute(sa.select(records_t.c.id).where(records_t.c.id == rid)).first() is not None:
-                rid = created["id"] = new_record_id()  # 60 random bits collided: draw again
             when = utc_now()
             header = {"id": rid, "lot": lot, "retort_id": retort_id, "process_id": process_id,
                       "process_version": process_version, "created_utc": when}
             payload_json = '{"record":' + canonical_json(header) + ',"snapshot":' + snapshot_json + "}"
+            # A stored id makes the INSERT fail (a conflict: retried with a new id). The record is
+            # new, so its chain and summary start empty (a stray summary row with its id would
+            # fail the summary's INSERT the same way).
             conn.execute(records_t.insert().values(**header))
             rows.append(self._insert_event(conn, record_id=rid, kind="entered", utc=when, actor=actor, role=role,
                                            payload_json=payload_json, payload={"record": header, "snapshot": snapshot},
-                                           event_id=eid, header=header))
+                                           event_id=eid, header=header, head=(0, GENESIS_HASH), summary=None))
             return rid
 
         return self.write_anchored(write)
@@ -267,7 +273,7 @@ class Store(Database):
                                          f"({done['kind']}) of record {done['record_id']}", source=self.name)
                     return event_from_row(done)
             check_first = True  # any retry looks first
-            st, head = self._state(conn, record_id)
+            st, heads = self._state(conn, record_id)
             p = dict(payload)
             roles.check_transition(record_id, st, action, actor=actor, role=role, payload=p)
             if kind == "evaluated":
@@ -283,25 +289,23 @@ class Store(Database):
                 p["decision_seq"] = st.decision_seq  # the supervisor cites the disposition in force
             text = ready_json if ready_json is not None else canonical_json(p)
             row = self._insert_event(conn, record_id=record_id, kind=kind, utc=utc_now(), actor=actor,
-                                     role=role, payload_json=text, payload=p, event_id=eid, head=head)
+                                     role=role, payload_json=text, payload=p, event_id=eid, **heads)
             rows.append(row)
             return event_from_row(row, p)
 
         return self.write_anchored(write)
 
-    def _state(self, conn: sa.Connection, record_id: str) -> tuple[roles.RecordState, tuple[int, str]]:
+    def _state(self, conn: sa.Connection, record_id: str) -> tuple[roles.RecordState, dict]:
         """The record's state from its events (only dispositions' payloads are read, for their
-        decision) and its chain head (seq, hash), in one query."""
-        payload = sa.case((events_t.c.kind == "disposition", events_t.c.payload), else_=sa.null())
-        rows = conn.execute(sa.select(events_t.c.seq, events_t.c.kind, events_t.c.hash, payload.label("p"))
-                            .where(events_t.c.record_id == record_id)
-                            .order_by(events_t.c.seq)).all()
+        decision), and what the append needs besides (``insert_event`` keywords: the record's
+        chain head, the store head, the summary row), all in one query under the write lock."""
+        rows, store_head, found = ledger.append_context(conn, record_id)
         if not rows or record_id == LIBRARY_ID:
             raise StoreError(f"no record {record_id}", source=self.name)
         st = roles.START
         for r in rows:
             st = roles.advance(st, r.kind, json.loads(r.p) if r.p is not None else None, r.seq)
-        return st, (rows[-1].seq, rows[-1].hash)
+        return st, {"head": (rows[-1].seq, rows[-1].hash), "store_head": store_head, "summary": found}
 
     # Convenience writers (the CLI and TUI use these).
 

@@ -91,6 +91,21 @@ def test_record_id_is_dr_and_12_base32_characters(store):
     assert re.fullmatch(r"DR-[A-Z2-7]{12}", rid)
 
 
+def test_a_drawn_id_that_is_taken_is_drawn_again_and_the_stored_record_kept(store, monkeypatch):
+    # The write no longer looks the id up first (one query fewer under the write lock): the
+    # INSERT of a taken id fails and the retry draws a new one.
+    first = new(store)
+    before = [e.hash for e in store.events(first)]
+    draws = iter([first, "DR-AAAAAAAAAAAB"])
+    monkeypatch.setattr(S, "new_record_id", lambda: next(draws))
+    second = new(store, lot="L-2")
+    assert second == "DR-AAAAAAAAAAAB"
+    assert [e.hash for e in store.events(first)] == before
+    assert store.record(first).lot == "L-1" and store.record(second).lot == "L-2"
+    assert {s.id: s.events for s in store.list_records()} == {first: 1, second: 1}
+    assert store.verify().ok
+
+
 def test_nan_and_non_json_payloads_are_refused(store):
     rid = new(store)
     with pytest.raises(StoreError, match="NaN or Infinity"):
