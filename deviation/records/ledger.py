@@ -63,16 +63,40 @@ def seal(key: bytes, store_id: str, key_id: str, from_global_seq: int, legacy_he
     return mac_text(key, seal_text(store_id, key_id, from_global_seq, legacy_head, created_utc))
 
 
+# The statements of an append, built once: executed with parameters, SQLAlchemy compiles each
+# once per process and the driver prepares it once per connection (the work is done under the
+# store's write lock, where every other writer waits).
+_RECORD_HEAD = (sa.select(events_t.c.seq, events_t.c.hash)
+                .where(events_t.c.record_id == sa.bindparam("rid")).order_by(events_t.c.seq.desc()).limit(1))
+_GLOBAL_HEAD = (sa.select(events_t.c.global_seq, events_t.c.global_hash)
+                .order_by(events_t.c.global_seq.desc()).limit(1))
+
+
+def _append_context_query() -> sa.Select:
+    head = _GLOBAL_HEAD.subquery()
+    payload = sa.case((events_t.c.kind == "disposition", events_t.c.payload), else_=sa.null())
+    return (sa.select(events_t.c.seq, events_t.c.kind, events_t.c.hash, payload.label("p"),
+                      head.c.global_seq.label("g_seq"), head.c.global_hash.label("g_hash"),
+                      *[c.label(f"s_{c.name}") for c in summaries_t.c])
+            .select_from(events_t.join(head, sa.true())
+                         .outerjoin(summaries_t, summaries_t.c.id == events_t.c.record_id))
+            .where(events_t.c.record_id == sa.bindparam("rid")).order_by(events_t.c.seq))
+
+
+_APPEND_CONTEXT = _append_context_query()
+_INSERT_EVENT = events_t.insert()
+_INSERT_SUMMARY = summaries_t.insert()
+_UPDATE_SUMMARY = summaries_t.update().where(summaries_t.c.id == sa.bindparam("summary_id"))
+_SELECT_SUMMARY = sa.select(summaries_t).where(summaries_t.c.id == sa.bindparam("rid"))
+
+
 def record_head(conn: sa.Connection, record_id: str) -> tuple[int, str]:
-    row = conn.execute(
-        sa.select(events_t.c.seq, events_t.c.hash).where(events_t.c.record_id == record_id)
-        .order_by(events_t.c.seq.desc()).limit(1)).first()
+    row = conn.execute(_RECORD_HEAD, {"rid": record_id}).first()
     return (row.seq, row.hash) if row else (0, GENESIS_HASH)
 
 
 def global_head(conn: sa.Connection) -> tuple[int, str]:
-    row = conn.execute(sa.select(events_t.c.global_seq, events_t.c.global_hash)
-                       .order_by(events_t.c.global_seq.desc()).limit(1)).first()
+    row = conn.execute(_GLOBAL_HEAD).first()
     return (row.global_seq, row.global_hash) if row else (0, GENESIS_HASH)
 
 
@@ -82,16 +106,7 @@ def append_context(conn: sa.Connection, record_id: str) -> tuple[list, tuple[int
     and, for dispositions only, the payload as ``p``), the store head ``(global_seq,
     global_hash)`` and the record's summary row (None when it has none). No events: ``([],
     store head, None)``."""
-    head = (sa.select(events_t.c.global_seq.label("g_seq"), events_t.c.global_hash.label("g_hash"))
-            .order_by(events_t.c.global_seq.desc()).limit(1).subquery())
-    payload = sa.case((events_t.c.kind == "disposition", events_t.c.payload), else_=sa.null())
-    summary_cols = [c.label(f"s_{c.name}") for c in summaries_t.c]
-    rows = conn.execute(
-        sa.select(events_t.c.seq, events_t.c.kind, events_t.c.hash, payload.label("p"), head.c.g_seq,
-                  head.c.g_hash, *summary_cols)
-        .select_from(events_t.join(head, sa.true())
-                     .outerjoin(summaries_t, summaries_t.c.id == events_t.c.record_id))
-        .where(events_t.c.record_id == record_id).order_by(events_t.c.seq)).all()
+    rows = conn.execute(_APPEND_CONTEXT, {"rid": record_id}).all()
     if not rows:
         return [], global_head(conn), None
     first = rows[0]._mapping
@@ -137,7 +152,7 @@ def insert_event(conn: sa.Connection, signer: Signer, *, record_id: str, kind: s
                role=role, payload=payload_json, prev_hash=prev, hash=h, origin=origin,
                global_prev_hash=gprev, global_hash=gh, event_id=event_id)
     # Append-only: events are INSERTed, never changed or removed.
-    conn.execute(events_t.insert().values(**row))
+    conn.execute(_INSERT_EVENT, row)
     if record_id != LIBRARY_ID:
         fold_into_summary(conn, row, payload if payload is not None else json.loads(payload_json), header=header,
                           found=summary)
@@ -164,9 +179,9 @@ def _parsed(text: str) -> dict:
 def write_summary(conn: sa.Connection, s: dict, *, exists: bool) -> None:
     values = summaries.to_row(s)
     if exists:
-        conn.execute(summaries_t.update().where(summaries_t.c.id == s["id"]).values(**values))
+        conn.execute(_UPDATE_SUMMARY, {**{k: v for k, v in values.items() if k != "id"}, "summary_id": s["id"]})
     else:
-        conn.execute(summaries_t.insert().values(**values))
+        conn.execute(_INSERT_SUMMARY, values)
 
 
 def fold_into_summary(conn: sa.Connection, row: dict, payload: dict, *, header: dict | None = None,
@@ -179,7 +194,7 @@ def fold_into_summary(conn: sa.Connection, row: dict, payload: dict, *, header: 
     """
     rid = row["record_id"]
     if found is UNREAD:
-        found = conn.execute(sa.select(summaries_t).where(summaries_t.c.id == rid)).mappings().first()
+        found = conn.execute(_SELECT_SUMMARY, {"rid": rid}).mappings().first()
     current = summaries.from_row(found) if found is not None else None
     if row["seq"] == 1 and (header is not None or isinstance(payload.get("record"), dict)):
         s = summaries.fold(None, kind=row["kind"], seq=1, utc=row["utc"], actor=row["actor"], role=row["role"],

@@ -224,7 +224,7 @@ class Store(Database):
             # A stored id makes the INSERT fail (a conflict: retried with a new id). The record is
             # new, so its chain and summary start empty (a stray summary row with its id would
             # fail the summary's INSERT the same way).
-            conn.execute(records_t.insert().values(**header))
+            conn.execute(records_t.insert(), header)
             rows.append(self._insert_event(conn, record_id=rid, kind="entered", utc=when, actor=actor, role=role,
                                            payload_json=payload_json, payload={"record": header, "snapshot": snapshot},
                                            event_id=eid, header=header, head=(0, GENESIS_HASH), summary=None))
