@@ -279,11 +279,13 @@ def _hold_text(s) -> str:
 
 def _cmd_list(args) -> int:
     store = store_of(args)
-    rows = store.list_records(state=args.state, lot=args.lot, retort=args.retort, since=args.since,
-                              until=args.until, plant=args.plant)
+    filters = dict(state=args.state, lot=args.lot, retort=args.retort, since=args.since, until=args.until,
+                   plant=args.plant)
     if args.json:
-        print_json({"records": [r.to_dict() for r in rows], "count": len(rows)})
+        rows = store.list_rows(**filters)
+        print_json({"records": rows, "count": len(rows)})
         return 0
+    rows = store.list_records(**filters)
     from rich.table import Table
 
     c = make_console()
