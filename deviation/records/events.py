@@ -322,6 +322,10 @@ def check_payload(kind: str, payload: Any, *, legacy: bool = False) -> None:
         arrays = payload.get("arrays")
         if arrays is not None and not (isinstance(arrays, dict) and isinstance(arrays.get("sha256"), str)):
             raise StoreError("an 'evaluated' event's 'arrays' must be the digest of the arrays (with 'sha256')")
+        if arrays is not None and ("format" in arrays and (type(arrays["format"]) is not int
+                                                          or arrays["format"] not in (1, 2))):
+            raise StoreError(f"an 'evaluated' event's arrays digest has format {arrays['format']!r}; "
+                             "expected 1 or 2")
         _seq(payload, "snapshot_seq", kind)
     elif kind in ("hold-placed", "hold-released"):
         _text(payload, "reason", kind)

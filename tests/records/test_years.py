@@ -6,16 +6,21 @@ release before (``data/legacy_store_v3.db``, made by ``data/make_legacy_store.py
 from __future__ import annotations
 
 import csv
+import hashlib
 import io
 import json
+import math
 import shutil
 import sqlite3
+import struct
 from pathlib import Path
 
 import pytest
 
 from deviation.cli import main
+from deviation.errors import StoreError
 from deviation.records import arrays
+from deviation.records.chains import canonical_json
 from deviation.records.store import open_store
 
 REPO = Path(__file__).resolve().parents[2]
@@ -89,6 +94,72 @@ def test_the_digest_tells_identical_from_changed_arrays():
     chk = arrays.check_arrays(digest, changed)
     assert chk["status"] == "differs" and "cold_spot.temperature_C" in chk["detail"]
     assert arrays.merge_arrays(compact, arr) == ev
+
+
+def test_digest_format_2_hashes_the_bits_and_format_1_digests_are_still_checked():
+    t = [i / 60.0 for i in range(40)]
+    arr = {"cold_spot.time_min": t, "cold_spot.temperature_C": [20.0 + 2.5 * x for x in t],
+           "cold_spot.index": list(range(40))}  # an integer array is digested as its JSON
+    new = arrays.arrays_digest(arr)
+    old = arrays.arrays_digest(arr, digest_format=1)
+    assert new["format"] == 2 and "format" not in old and new["sha256"] != old["sha256"]
+    # Format 1 as it was written (the canonical JSON of {path: array}), recomputed by hand.
+    assert old["sha256"] == hashlib.sha256(canonical_json(arr).encode("utf-8")).hexdigest()
+    # Format 2 by hand: the header, then the float64 bits little-endian, the integers as JSON.
+    paths = sorted(arr)
+    head = canonical_json([[p, 40, "json" if p.endswith("index") else "f8"] for p in paths]) + "\n"
+    body = b"".join(struct.pack("<40d", *arr[p]) if not p.endswith("index") else canonical_json(arr[p]).encode()
+                    for p in paths)
+    assert new["sha256"] == hashlib.sha256(head.encode() + body).hexdigest()
+    for digest in (new, old):
+        assert arrays.check_arrays(digest, arr)["status"] == "identical"
+        one_ulp = dict(arr, **{"cold_spot.time_min": [math.nextafter(t[0], 1.0)] + t[1:]})
+        assert arrays.check_arrays(digest, one_ulp)["status"] == "within-tolerance"
+        as_ints = dict(arr, **{"cold_spot.index": [float(i) for i in range(40)]})  # 3 vs 3.0: other values
+        assert arrays.check_arrays(digest, as_ints)["status"] != "identical"
+    unknown = dict(new, format=3)
+    chk = arrays.check_arrays(unknown, arr)
+    assert chk["status"] == "differs" and "format 3" in chk["detail"]
+
+
+def test_an_event_digested_in_format_1_replays_identical(capsys, backend):
+    # As the release before format 2 wrote it: compact, the digest the canonical JSON's SHA-256.
+    from deviation.evaluate import evaluate_snapshot
+    from deviation.evaluate.pipeline import default_rule_set
+    from deviation.inputs.case import load_case
+
+    snapshot = load_case(CASE).snapshot()
+    ev = evaluate_snapshot(snapshot, conservative=False, rule_set=default_rule_set()).model_dump(mode="json")
+    compact, arr = arrays.split_arrays(ev)
+    db = backend.target("fmt1")
+    store = open_store(db)
+    try:
+        rid = store.create_record(snapshot, lot="L-1", retort_id="R1", process_id="P", **OP)
+        store.append_event(rid, "evaluated", {"engine_version": ev["engine_version"],
+                                              "rule_set_sha256": ev["guidance"]["rule_set_sha256"],
+                                              "options": {"conservative": False, "what_if": True},
+                                              "snapshot_seq": 1, "evaluation": compact,
+                                              "arrays": arrays.arrays_digest(arr, digest_format=1)}, **OP)
+        assert "format" not in store.events(rid)[-1].payload["arrays"]
+    finally:
+        store.close()
+    code, out, _ = run(capsys, "replay", rid, "--db", db, "--json")
+    r = json.loads(out)["records"][0]
+    assert code == 0 and r["reproduced"] and r["arrays"] == "identical"
+
+
+def test_an_evaluated_event_with_an_unknown_digest_format_is_refused(backend):
+    store = backend.open("fmt")
+    try:
+        rid = store.create_record({"case": {}}, actor="olga", role="operator", lot="L", retort_id="R",
+                                  process_id="P")
+        for bad in (3, True, "2"):
+            payload = {"engine_version": "0.2.1", "evaluation": {"delivered_F_min": 1.0},
+                       "arrays": {"format": bad, "sha256": "0" * 64, "lengths": {}, "last": {}}}
+            with pytest.raises(StoreError, match="expected 1 or 2"):
+                store.append_event(rid, "evaluated", payload, actor="olga", role="operator")
+    finally:
+        store.close()
 
 
 def test_replay_reproduces_a_compact_event_and_checks_the_arrays(capsys, backend):
