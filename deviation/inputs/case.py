@@ -68,9 +68,23 @@ def _accept_fahrenheit(data: Any) -> Any:
     return data
 
 
+_BOUNDS_OF: dict[int, tuple[limits.Limits, dict[str, tuple[float, float, str]]]] = {}
+
+
 def _bounds() -> dict[str, tuple[float, float, str]]:
-    """Field name -> (lowest, highest, unit) from the limits in force (``rules/limits.toml``)."""
+    """Field name -> (lowest, highest, unit) from the limits in force (``rules/limits.toml``);
+    built once per limits in force (every field of every case is checked against it)."""
     lim = limits.current()
+    kept = _BOUNDS_OF.get(id(lim))
+    if kept is not None and kept[0] is lim:
+        return kept[1]
+    _BOUNDS_OF.clear()
+    table = _bounds_of(lim)
+    _BOUNDS_OF[id(lim)] = (lim, table)
+    return table
+
+
+def _bounds_of(lim: limits.Limits) -> dict[str, tuple[float, float, str]]:
     dims = (lim.container_dimension_min_mm, lim.container_dimension_max_mm, "mm")
     fh = (lim.fh_min_min, lim.fh_max_min, "min")
     j = (lim.j_min, lim.j_max, "")
