@@ -472,7 +472,7 @@ class Store(Database):
         names = tuple(RecordSummary.__dataclass_fields__)
         q = q.with_only_columns(*(summaries_t.c[c] for c in names))
         with self._read() as conn:
-            rows = [dict(zip(names, r)) for r in conn.execute(q).tuples()]
+            rows = [dict(zip(names, r)) for r in conn.execute(q)]
         for r in rows:  # booleans as booleans, whatever the database returned
             r["held"], r["imported"] = bool(r["held"]), bool(r["imported"])
         return rows
