@@ -106,6 +106,37 @@ def test_a_drawn_id_that_is_taken_is_drawn_again_and_the_stored_record_kept(stor
     assert store.verify().ok
 
 
+def test_under_the_write_lock_an_append_reads_once_then_writes_the_event_and_summary(store):
+    # The store's throughput with many writers is the time each spends under the write lock
+    # (README benchmark table, PostgreSQL load): a regression guard on what is done there.
+    import sqlalchemy as sa
+
+    seen: list[tuple[str, str]] = []
+
+    def note(conn, cursor, statement, params, context, executemany):  # noqa: ANN001
+        text = " ".join(statement.split())
+        if text.startswith("BEGIN") or "pg_advisory_xact_lock" in text or text == "SELECT 1":
+            return
+        m = re.match(r"(INSERT) INTO (\w+)|(UPDATE) (\w+)|(SELECT) .*? FROM (\w+)", text)
+        verb, table = [g for g in m.groups() if g]
+        seen.append((verb, table))
+
+    sa.event.listen(store.engine, "before_cursor_execute", note)
+    try:
+        rid = new(store)
+        created = list(seen)
+        seen.clear()
+        store.place_hold(rid, reason="drop", **SUP)
+        held = list(seen)
+    finally:
+        sa.event.remove(store.engine, "before_cursor_execute", note)
+    # A new record: the record, the store head, its first event and its summary (no look-ups).
+    assert created == [("INSERT", "records"), ("SELECT", "events"), ("INSERT", "events"),
+                       ("INSERT", "record_summaries")]
+    # An append: one read (events, store head and summary together), the event, the summary.
+    assert held == [("SELECT", "events"), ("INSERT", "events"), ("UPDATE", "record_summaries")]
+
+
 def test_nan_and_non_json_payloads_are_refused(store):
     rid = new(store)
     with pytest.raises(StoreError, match="NaN or Infinity"):
