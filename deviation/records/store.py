@@ -195,7 +195,8 @@ class Store(Database):
         check_first = event_id is not None
         eid = checked_event_id(event_id)
         self.signer.require(self.name)
-        # Made once, outside the transaction: a retry writes the same record, not a new one.
+        # A retry after an unknown outcome finds the committed event by its id first (so it
+        # returns that record, never makes a second); one that did not commit draws a new id.
         created = {"id": new_record_id(), "tries": 0}
         # The snapshot (log contents and all) is serialised before the transaction; the payload
         # text is exactly canonical_json({"record": header, "snapshot": snapshot}).
@@ -469,7 +470,7 @@ class Store(Database):
         ``record list --json``), read straight from the query's tuples: 10,000 rows in a few
         hundredths of a second."""
         q = self._summary_query(**filters)
-        names = tuple(RecordSummary.__dataclass_fields__)
+        names = tuple(RecordSummary.__dataclass_fields__)  # columns only: a list row reads no JSON
         q = q.with_only_columns(*(summaries_t.c[c] for c in names))
         with self._read() as conn:
             rows = [dict(zip(names, r)) for r in conn.execute(q)]

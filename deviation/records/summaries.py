@@ -20,8 +20,6 @@ SUMMARY_FORMAT = 1
 COLUMNS = ("id", "lot", "retort_id", "process_id", "process_version", "created_utc", "plant", "state",
            "events", "last_utc", "last_global_seq", "guidance", "delivered_F_min", "target_F_min", "held",
            "decision", "decision_words", "decided_by", "decided_utc", "superseded", "imported", "format")
-# What a list row needs, in columns (``record list`` and the holds board read no JSON).
-LIST_COLUMNS = tuple(c for c in COLUMNS if c not in ("last_global_seq", "format"))
 
 
 def _plant(snapshot: Any) -> str | None:
